@@ -1,0 +1,84 @@
+# rowfit: build, demo, tests, benchmark. See README.md and DEVELOPERS.md.
+#   make            build ./rowfit
+#   make deps       install missing Debian packages (runs apt-get as root)
+#   make demo       build and run the demo job (workbooks/house-prices.job)
+#   make check      build and run every test; SANITIZE=1 under ASan+UBSan
+#   make bench      speed and memory benchmark (not part of check)
+#   make install PREFIX=/usr/local ; make clean
+
+VERSION  := 0.1.0
+PREFIX   ?= /usr/local
+CC       ?= cc
+OPT      ?= -O2
+SANITIZE ?= 0
+
+WARN    := -Wall -Wextra -Wpedantic -Wshadow -Wwrite-strings
+CFLAGS  += -std=c11 $(OPT) -g $(WARN) -D_POSIX_C_SOURCE=200809L \
+           -DROWFIT_VERSION='"$(VERSION)"'
+LDLIBS  := -lxlsxwriter -lgsl -lopenblas -lminizip -lexpat -lz -lm
+
+ifeq ($(SANITIZE),1)
+BUILD   := build-san
+CFLAGS  += -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=undefined
+LDFLAGS += -fsanitize=address,undefined
+else
+BUILD   := build
+endif
+
+# Debian packages: the build needs the -dev ones, the tests the rest.
+DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
+             libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev
+DEB_TEST  := libcmocka-dev python3 python3-openpyxl
+
+IO_SRC     := $(sort $(wildcard io/*.c))
+ENGINE_SRC := $(sort $(filter-out engine/main.c,$(wildcard engine/*.c)))
+LIB_OBJ    := $(patsubst %.c,$(BUILD)/%.o,$(IO_SRC) $(ENGINE_SRC))
+TEST_SRC   := $(sort $(wildcard tests/test_*.c))
+TEST_BIN   := $(patsubst tests/%.c,$(BUILD)/tests/%,$(TEST_SRC))
+
+ifeq ($(SANITIZE),1)
+PROG := $(BUILD)/rowfit
+else
+PROG := rowfit
+endif
+
+.PHONY: all deps demo check unit e2e bench install clean
+all: $(PROG)
+
+$(PROG): $(BUILD)/engine/main.o $(LIB_OBJ)
+	$(CC) $(LDFLAGS) -o $@ $^ $(LDLIBS)
+
+$(BUILD)/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -MMD -MP -c -o $@ $<
+
+# A unit test links the module objects; helpers in tests/testutil.h.
+$(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h $(LIB_OBJ)
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS) -lcmocka
+
+-include $(shell find $(BUILD) -name '*.d' 2>/dev/null)
+
+deps:
+	@sh tools/deps.sh $(DEB_BUILD) $(DEB_TEST)
+
+demo: deps
+	@$(MAKE) --no-print-directory all
+	./rowfit workbooks/house-prices.job
+
+check: deps
+	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN)
+	@ROWFIT=$(PROG) BUILD=$(BUILD) sh tests/run.sh $(TEST_BIN)
+
+unit: $(TEST_BIN)
+	@for t in $(TEST_BIN); do $$t || exit 1; done
+
+bench: all
+	@sh tests/bench.sh
+
+install: $(PROG)
+	install -d $(DESTDIR)$(PREFIX)/bin
+	install -m 755 $(PROG) $(DESTDIR)$(PREFIX)/bin/rowfit
+
+clean:
+	rm -rf build build-san rowfit workbooks/*-results.xlsx tests/out

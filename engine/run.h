@@ -1,0 +1,26 @@
+/*
+ * run.h: one job from its file to its workbook: read the job, read the
+ * tables, build the design, fit, lay out the report, write it. The only
+ * place the engine and io meet; main() calls it and does nothing else but
+ * parse the command line and print.
+ */
+#ifndef ROWFIT_RUN_H
+#define ROWFIT_RUN_H
+
+#include <stddef.h>
+
+#include "../io/error.h"
+
+typedef struct run_options {
+    const char *output;  /* -o PATH, or NULL for the job's own choice */
+    int check_only;      /* `rowfit check`: read and check, fit nothing, write nothing */
+    int force;           /* --force */
+    int progress;        /* show progress on stderr (a terminal and not -q) */
+} run_options;
+
+/* Runs the job file at path. Warnings are appended to warn. On success
+ * written holds the workbook's path (empty for check_only). */
+rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
+                  char *written, size_t written_len, rf_error *err);
+
+#endif
