@@ -15,7 +15,7 @@ SANITIZE ?= 0
 WARN    := -Wall -Wextra -Wpedantic -Wshadow -Wwrite-strings
 CFLAGS  += -std=c11 $(OPT) -g $(WARN) -D_POSIX_C_SOURCE=200809L \
            -DROWFIT_VERSION='"$(VERSION)"'
-LDLIBS  := -lxlsxwriter -lgsl -lopenblas -lminizip -lexpat -lz -lm
+LDLIBS  := -lxlsxwriter -lgsl -lopenblas -lminizip -lexpat -lz -lnettle -lm
 
 ifeq ($(SANITIZE),1)
 BUILD   := build-san
@@ -27,7 +27,7 @@ endif
 
 # Debian packages: the build needs the -dev ones, the tests the rest.
 DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
-             libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev
+             libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev nettle-dev
 DEB_TEST  := libcmocka-dev python3 python3-openpyxl
 
 IO_SRC     := $(sort $(wildcard io/*.c))

@@ -15,13 +15,27 @@
 
 #include "../io/error.h"
 
+/* Limits, each with its reason. */
+#define FORMULA_TEXT_MAX 8192   /* bytes of source: one job line, and the most
+                                   a live workbook formula may hold (8192
+                                   characters in common spreadsheets, from
+                                   memory) */
+#define FORMULA_DEPTH_MAX 64    /* nesting of parentheses, calls and signs:
+                                   the parser recurses once per level */
+#define FORMULA_STACK_MAX 256   /* values held at once while evaluating: the
+                                   evaluator keeps them in a fixed array so a
+                                   row costs no allocation */
+
 typedef enum fvalue_type { FV_BLANK = 0, FV_NUMBER, FV_TEXT, FV_ERROR } fvalue_type;
 
 /* A value in or out of a formula. Dates and yes-no values are numbers
  * (serial day; 1/0). text is borrowed: the caller's or the formula's own. */
 typedef struct fvalue {
     fvalue_type type;
-    double num;
+    /* Extended precision: a derived x^10 must keep the digits a double
+     * would round away (ill-conditioned designs depend on them); evaluate
+     * with the long double functions (powl, logl, ...). */
+    long double num;
     const char *text;  /* FV_TEXT; FV_ERROR: the error as shown ("#N/A") */
 } fvalue;
 
@@ -41,7 +55,10 @@ const char *formula_ref(const formula *f, size_t i);
 
 /* Evaluates f with refs[i] the value of formula_ref(f, i). Returns 0 and
  * sets *out (a number or text), or -1 with why filled ("division by zero",
- * "LN of -3", "bathrooms is blank", "age is 'n/a', not a number"). */
+ * "LN of -3", "bathrooms is blank", "age is 'n/a', not a number"); why may
+ * be NULL. Comparisons give 1 or 0; text compares without regard to ASCII
+ * case and any number is less than any text. IF evaluates only the branch
+ * it takes, so a blank there does not stop the row. */
 int formula_eval(const formula *f, const fvalue *refs, fvalue *out,
                  char *why, size_t whylen);
 

@@ -16,7 +16,19 @@ typedef enum job_missing { MISSING_SKIP = 0, MISSING_STOP } job_missing;
 typedef enum job_solver { SOLVER_DEFAULT = 0, SOLVER_EXACT, SOLVER_GRADIENT,
                           SOLVER_LBFGS, SOLVER_ADAM } job_solver;
 
+/* Limits of the language, each with its reason. */
 #define JOB_HIDDEN_MAX 4  /* hidden layers a network may have */
+#define JOB_UNITS_MAX 1000   /* units per hidden layer: a network for a table
+                                of office size needs tens; 1000 already costs
+                                minutes per epoch (common practice) */
+#define JOB_HIDDEN_DEFAULT 8 /* units in the one hidden layer when `hidden`
+                                is not given (contract section 2) */
+#define JOB_FOLDS_MAX 1000   /* each fold is a refit; past 1000 the estimate
+                                stops changing and only the run time grows */
+#define JOB_RESTARTS_MAX 100 /* each restart is a full network fit */
+#define JOB_HEADER_MAX 1048576 /* the last row a spreadsheet can have */
+#define JOB_FILE_MAX (1L << 20) /* a job is a few dozen lines; a bigger file
+                                   is not a job file */
 
 /* A table to read: `data` or `score`. */
 typedef struct job_table {
@@ -36,7 +48,7 @@ typedef struct job_name {
 
 typedef struct job_derive {
     char *name;
-    char *formula;  /* the text after '=', trimmed */
+    char *formula;  /* the text after '=', trimmed, trailing comment cut */
     int line;
 } job_derive;
 
@@ -50,7 +62,7 @@ typedef struct job {
     char *file;     /* the job file as named on the command line */
     char *dir;      /* its folder, for resolving paths */
     char *text;     /* the whole text, for the Job sheet */
-    char *name;     /* `job`, else the file's base name without .job */
+    char *name;     /* `job`, else the file's base name without extension */
     int name_line;
 
     job_table data, score;        /* score.path == NULL when absent */
@@ -97,7 +109,13 @@ void job_free(job *j);  /* accepts NULL */
 const char *job_model_name(job_model m);  /* "linear", ... */
 
 /* The nearest of n candidate names to name by edit distance (case-
- * insensitive), or NULL when none is close enough to be a plausible typo. */
+ * insensitive), or NULL when none is close enough to be a plausible typo.
+ * Distance is the optimal-string-alignment form of Damerau-Levenshtein
+ * (insert, delete, replace, swap two neighbours), counted in bytes, ASCII
+ * letters folded to lower case. A candidate is close enough when the
+ * distance is at most max(1, L/3), L the longer of the two lengths; on a
+ * tie the earlier candidate wins. Names longer than 64 bytes get no
+ * suggestion (the rule is for typos, and it keeps the work on the stack). */
 const char *job_nearest(const char *name, const char *const *candidates,
                         size_t n);
 

@@ -15,12 +15,16 @@ typedef struct run_options {
     const char *output;  /* -o PATH, or NULL for the job's own choice */
     int check_only;      /* `rowfit check`: read and check, fit nothing, write nothing */
     int force;           /* --force */
-    int progress;        /* show progress on stderr (a terminal and not -q) */
 } run_options;
 
-/* Runs the job file at path. Warnings are appended to warn. On success
- * written holds the workbook's path (empty for check_only). */
+/* What a run did, for the line main() prints. */
+typedef struct run_result {
+    char written[4096];  /* the workbook's path; empty for check_only */
+    size_t rows_fitted, rows_estimated, rows_skipped, terms;
+} run_result;
+
+/* Runs the job file at path. Warnings are appended to warn. */
 rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
-                  char *written, size_t written_len, rf_error *err);
+                  run_result *res, rf_error *err);
 
 #endif

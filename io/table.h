@@ -6,6 +6,11 @@
  * source position so messages can name "sales.csv:1042" or
  * "sales.xlsx[Closed sales]!D17". Not a reader and not a model: it knows
  * neither file formats nor statistics.
+ *
+ * Column names are stored and compared exactly (case and inner spaces
+ * count) after trimming leading and trailing ASCII spaces and tabs, so
+ * " price" and "price" are the same column but "Price" is another: a header
+ * cell's stray spaces are invisible in a spreadsheet, its case is not.
  */
 #ifndef ROWFIT_TABLE_H
 #define ROWFIT_TABLE_H

@@ -13,6 +13,7 @@
 
 #include <stddef.h>
 #include <stdint.h>
+#include <time.h>
 
 #include "error.h"
 
@@ -42,9 +43,25 @@ rf_status writer_open(const char *path, int force,
                       const char *const *inputs, size_t n_inputs,
                       const char *creator, writer **out, rf_error *err);
 
-/* Adds a sheet (names: at most 31 characters, none of []:*?/\). Returns
- * NULL and fills err on a bad name or no memory. Sheets appear in the order
- * they are added. */
+/* Warnings (a text cut to fit a cell, bad UTF-8 replaced) go to warnings,
+ * which the caller owns and must keep alive until commit or abort. Without
+ * it they are dropped silently. */
+void writer_set_warnings(writer *w, rf_warnings *warnings);
+
+/* Fixes the document's creation time (default: the time of commit), so two
+ * runs on the same input give byte-identical files. */
+void writer_set_created(writer *w, time_t created);
+
+/* Cell calls return only a status; the first failure is kept here with its
+ * place ("results.xlsx[Estimates]!B7") and message. RF_OK when none. After
+ * a failure every later cell call returns that status and writes nothing,
+ * and writer_commit returns it. */
+rf_status writer_status(const writer *w, rf_error *err);
+
+/* Adds a sheet (names: at most 31 characters, none of []:*?/\, not empty,
+ * not starting or ending with an apostrophe, not "History", unique ignoring
+ * ASCII case). Returns NULL and fills err (RF_EINPUT) on a bad name, or on
+ * no memory. Sheets appear in the order they are added. */
 writer_sheet *writer_add_sheet(writer *w, const char *name, rf_error *err);
 
 /* Column widths (in characters) and a default format, before any row. */

@@ -24,7 +24,7 @@ static inline void assert_close_at(double a, double b, double rel,
 {
     double scale = fmax(fabs(a), fabs(b));
     if (!(fabs(a - b) <= rel * scale + abs_tol)) {
-        cm_print_error("%s = %.17g, expected %.17g (rel %g, abs %g)\n",
+        print_error("%s = %.17g, expected %.17g (rel %g, abs %g)\n",
                        what, a, b, rel, abs_tol);
         _fail(file, line);
     }

@@ -1,0 +1,90 @@
+/*
+ * linear.h: ordinary least squares for the linear model. Householder QR with
+ * column pivoting decides the rank; terms that add nothing are dropped and
+ * reported with the reason; the solution, the residuals and the covariance
+ * are refined with extended-precision residuals. Gives every measure of the
+ * Summary sheet and prediction intervals. Knows matrices, not tables, names
+ * or workbooks.
+ */
+#ifndef ROWFIT_LINEAR_H
+#define ROWFIT_LINEAR_H
+
+#include <stddef.h>
+
+#include "../io/error.h"
+
+/* Why a term has no estimate. */
+typedef enum linear_drop {
+    LINEAR_KEPT = 0,
+    LINEAR_DROP_ZERO,       /* every fitted value of the term is 0 */
+    LINEAR_DROP_CONSTANT,   /* the same value in every fitted row, and there
+                               is an intercept */
+    LINEAR_DROP_COLLINEAR   /* a combination of earlier terms (see with[]) */
+} linear_drop;
+
+#define LINEAR_WITH_MAX 4  /* terms named in a collinearity note */
+
+/* Terms a linear model may have: the refinement keeps per-term sums on the
+ * stack, and a spreadsheet user's model with more terms than this is far
+ * past what the rows of a sheet can support. */
+#define LINEAR_RANK_MAX 512
+
+/* Relative tolerance of the rank decision: after each column is scaled to
+ * unit length (by a power of two, so exactly), a term is dropped when what
+ * it adds beyond the earlier terms, |R_kk|, is below LINEAR_RANK_TOL times
+ * the largest |R_11|. 1e-11 keeps the hardest NIST set (Filip, degree 10,
+ * scaled condition about 1e9) while a column equal to another up to
+ * rounding is still caught. */
+#define LINEAR_RANK_TOL 1e-11
+
+typedef struct linear_model {
+    size_t n, p, rank;
+    int intercept;          /* column 0 is the constant term */
+    double level;           /* confidence level of the intervals */
+    double rank_tol;        /* LINEAR_RANK_TOL, as used */
+
+    /* Per term, p entries; NaN where a term was dropped or a value has no
+     * meaning (no residual degrees of freedom). */
+    double *beta, *se, *t, *pvalue, *low, *high;
+    linear_drop *drop;
+    size_t *with;           /* p * LINEAR_WITH_MAX term indices */
+    size_t *n_with;         /* how many of with[] are set for each term */
+
+    /* Fit measures (see docs/workbook.md for definitions). */
+    double rss, tss;        /* tss is uncentred without an intercept */
+    double r2, adj_r2, sigma, rmse, mae;
+    double fstat, fpvalue;  /* NaN when undefined (no regression df) */
+    double df_resid, df_model;
+    double loglik, aic, bic;
+    double cond;            /* condition number estimate of the scaled design */
+    int refine_steps;       /* refinement steps taken for the solution */
+    int refine_converged;   /* 0: accuracy may be below double precision */
+    double tcrit;           /* t quantile for the intervals */
+
+    double *residual;       /* n: y - X beta for the fitted rows */
+
+    /* Private to linear.c: the factor for prediction variances. */
+    double *R;              /* rank x rank, pivoted, scaled */
+    size_t *cols;           /* rank: design column of each pivoted R column */
+    double *scale;          /* p: the power-of-two column scales */
+} linear_model;
+
+/* Fits y (n) on X (n x p, row-major; column 0 all ones when intercept).
+ * Extended precision in: a derived column such as x^10 carries the digits
+ * that a double would round away, and on ill-conditioned designs those
+ * digits decide the answer (NIST Filip: 7.6 correct digits from powers
+ * rounded to double, 10+ from extended ones).
+ * level is the confidence level in (0, 1). Errors (RF_EINPUT): fewer rows
+ * than terms plus one, non-finite values. *out is the new model. */
+rf_status linear_fit(const long double *X, const long double *y, size_t n, size_t p,
+                     int intercept, double level, linear_model **out,
+                     rf_error *err);
+void linear_free(linear_model *m);  /* accepts NULL */
+
+/* The estimate for a row x (p values, same columns as X) and its prediction
+ * interval at the model's level. low/high are NaN when there are no
+ * residual degrees of freedom. */
+void linear_predict(const linear_model *m, const long double *x, double *est,
+                    double *low, double *high);
+
+#endif

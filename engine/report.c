@@ -1,0 +1,543 @@
+/*
+ * report.c: the result workbook's layout (see report.h, docs/workbook.md).
+ *
+ * Estimates carries live formulas: each row's estimate is the sum of the
+ * Coefficients sheet's estimates times the row's own input cells, and the
+ * residual is target minus estimate, each with rowfit's value cached. A
+ * user who edits an input sees the estimate follow in any spreadsheet
+ * program; one that does not recalculate still shows rowfit's numbers.
+ */
+#include "report.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define CAUTION_PRICE \
+    "An estimate is a statistical summary of the rows the model learned " \
+    "from, not an appraisal or a valuation. It assumes the model's form is " \
+    "right and that new rows resemble the fitted ones. Follow local law, " \
+    "professional standards and licensed appraisal practice before relying " \
+    "on any figure here."
+
+/* Grows a string buffer; returns -1 on no memory. */
+typedef struct strbuf {
+    char *s;
+    size_t n, cap;
+} strbuf;
+
+static int sb_add(strbuf *b, const char *fmt, ...)
+    __attribute__((format(printf, 2, 3)));
+
+#include <stdarg.h>
+static int sb_add(strbuf *b, const char *fmt, ...)
+{
+    for (;;) {
+        va_list ap;
+        va_start(ap, fmt);
+        size_t room = b->cap - b->n;
+        int k = vsnprintf(b->s ? b->s + b->n : NULL, room, fmt, ap);
+        va_end(ap);
+        if (k < 0)
+            return -1;
+        if ((size_t)k < room) {
+            b->n += (size_t)k;
+            return 0;
+        }
+        size_t cap = b->cap ? 2 * b->cap : 256;
+        while (cap - b->n <= (size_t)k)
+            cap *= 2;
+        char *s = realloc(b->s, cap);
+        if (s == NULL)
+            return -1;
+        b->s = s;
+        b->cap = cap;
+    }
+}
+
+/* Writes a table cell as it was: numbers as numbers, dates as dates, text
+ * as text; blank stays blank. */
+static rf_status write_cell(writer_sheet *s, uint32_t r, uint16_t c,
+                            const table *t, size_t row, size_t col)
+{
+    switch (table_cell_type(t, row, col)) {
+    case CELL_BLANK:
+        return RF_OK;
+    case CELL_NUMBER:
+        return writer_number(s, r, c, table_cell_number(t, row, col),
+                             WFMT_NONE, NULL);
+    case CELL_DATE:
+        return writer_number(s, r, c, table_cell_number(t, row, col),
+                             WFMT_DATE, NULL);
+    case CELL_BOOL:
+        return writer_text(s, r, c,
+                           table_cell_number(t, row, col) ? "TRUE" : "FALSE",
+                           WFMT_NONE);
+    case CELL_TEXT:
+    case CELL_ERROR:
+        return writer_text(s, r, c, table_cell_text(t, row, col), WFMT_NONE);
+    }
+    return RF_OK;
+}
+
+/* Column letters of a 0-based column: 0 -> A. */
+static void col_name(uint16_t col, char *buf, size_t n)
+{
+    char tmp[16];
+    writer_cell_name(0, col, tmp, sizeof tmp);
+    size_t k = 0;
+    while (tmp[k] && (tmp[k] < '0' || tmp[k] > '9') && k + 1 < n) {
+        buf[k] = tmp[k];
+        k++;
+    }
+    buf[k] = '\0';
+}
+
+/* A quoted text literal for a spreadsheet formula: "a""b". */
+static int sb_quoted(strbuf *b, const char *s)
+{
+    if (sb_add(b, "\""))
+        return -1;
+    for (; *s; s++)
+        if (sb_add(b, *s == '"' ? "\"\"" : "%c", *s))
+            return -1;
+    return sb_add(b, "\"");
+}
+
+/* Layout of the Estimates sheet. */
+typedef struct est_layout {
+    uint16_t c_source, c_row, c_id, c_target, c_est, c_res, c_low, c_high,
+        c_status, c_input0;
+    int has_id;
+    size_t ncols;
+} est_layout;
+
+/* The estimate formula for row r (0-based sheet row), terms in order. */
+static int estimate_formula(strbuf *b, const design *d, const linear_model *m,
+                            const est_layout *L, uint32_t r)
+{
+    b->n = 0;
+    if (sb_add(b, "="))
+        return -1;
+    int first = 1;
+    char cell[32], col[16];
+    for (size_t k = 0; k < d->p; k++) {
+        if (m->drop[k] != LINEAR_KEPT)
+            continue;
+        /* Coefficients!$B$(k+2) is term k's estimate */
+        if (!first && sb_add(b, "+"))
+            return -1;
+        first = 0;
+        if (sb_add(b, "Coefficients!$B$%zu", k + 2))
+            return -1;
+        if (d->intercept && k == 0)
+            continue;
+        /* which input does term k belong to */
+        for (size_t i = 0; i < d->n_inputs; i++) {
+            const design_input *in = &d->inputs[i];
+            size_t nterms = in->is_category
+                                ? (in->n_levels ? in->n_levels - 1 : 0) : 1;
+            if (k < in->first_term || k >= in->first_term + nterms)
+                continue;
+            col_name((uint16_t)(L->c_input0 + i), col, sizeof col);
+            snprintf(cell, sizeof cell, "%s%u", col, r + 1);
+            if (!in->is_category) {
+                if (sb_add(b, "*%s", cell))
+                    return -1;
+            } else {
+                size_t lv = k - in->first_term;
+                if (lv >= in->reference)
+                    lv++;
+                if (sb_add(b, "*(%s=", cell) || sb_quoted(b, in->levels[lv])
+                    || sb_add(b, ")"))
+                    return -1;
+            }
+        }
+    }
+    if (first && sb_add(b, "0"))
+        return -1;
+    return 0;
+}
+
+static rf_status write_estimates(writer *w, const job *j, const table *data,
+                                 const table *score, const design *d,
+                                 const linear_model *m, rf_warnings *warn,
+                                 rf_error *err)
+{
+    writer_sheet *s = writer_add_sheet(w, "Estimates", err);
+    if (s == NULL)
+        return err->status;
+    est_layout L;
+    uint16_t c = 0;
+    L.c_source = c++;
+    L.c_row = c++;
+    L.has_id = j->id.name != NULL;
+    L.c_id = L.has_id ? c++ : 0;
+    L.c_target = c++;
+    L.c_est = c++;
+    L.c_res = c++;
+    L.c_low = c++;
+    L.c_high = c++;
+    L.c_status = c++;
+    L.c_input0 = c;
+    L.ncols = c + d->n_inputs;
+
+    const char **names = malloc(L.ncols * sizeof *names);
+    if (names == NULL)
+        return error_nomem(err, NULL);
+    names[L.c_source] = "source";
+    names[L.c_row] = "row";
+    if (L.has_id)
+        names[L.c_id] = j->id.name;
+    names[L.c_target] = j->target.name;
+    names[L.c_est] = "estimate";
+    names[L.c_res] = "residual";
+    names[L.c_low] = "low";
+    names[L.c_high] = "high";
+    names[L.c_status] = "status";
+    for (size_t i = 0; i < d->n_inputs; i++)
+        names[L.c_input0 + i] = d->inputs[i].name;
+
+    rf_status st = RF_OK;
+    writer_column(s, L.c_source, 8, WFMT_NONE);
+    writer_column(s, L.c_row, 8, WFMT_INTEGER);
+    if (L.has_id)
+        writer_column(s, L.c_id, 12, WFMT_NONE);
+    writer_column(s, L.c_target, 14, WFMT_FIXED2);
+    writer_column(s, L.c_est, 14, WFMT_FIXED2);
+    writer_column(s, L.c_res, 14, WFMT_FIXED2);
+    writer_column(s, L.c_low, 14, WFMT_FIXED2);
+    writer_column(s, L.c_high, 14, WFMT_FIXED2);
+    writer_column(s, L.c_status, 28, WFMT_NONE);
+    for (size_t i = 0; i < d->n_inputs; i++) {
+        double wdt = strlen(d->inputs[i].name) + 3.0;
+        writer_column(s, (uint16_t)(L.c_input0 + i), wdt < 10 ? 10 : wdt,
+                      WFMT_NONE);
+    }
+    if ((st = writer_header(s, names, L.ncols, (uint32_t)d->n_rows))) {
+        free(names);
+        return writer_status(w, err);
+    }
+    free(names);
+
+    strbuf fb = { NULL, 0, 0 };
+    char status[600], cell[32], cell2[32];
+    for (size_t o = 0; o < d->n_rows; o++) {
+        const design_row *row = &d->rows[o];
+        const table *t = row->source == SOURCE_DATA ? data : score;
+        uint32_t r = (uint32_t)(o + 1);
+        writer_text(s, r, L.c_source,
+                    row->source == SOURCE_DATA ? "data" : "score", WFMT_NONE);
+        writer_number(s, r, L.c_row, table_row_source(t, row->row),
+                      WFMT_INTEGER, NULL);
+        long idc = row->source == SOURCE_DATA ? d->id_col_data
+                                              : d->id_col_score;
+        if (L.has_id && idc >= 0)
+            write_cell(s, r, L.c_id, t, row->row, (size_t)idc);
+        double target = (double)d->target[o];
+        if (isfinite(target))
+            writer_number(s, r, L.c_target, target, WFMT_FIXED2, NULL);
+        else if (row->source == SOURCE_DATA && d->target_col >= 0)
+            write_cell(s, r, L.c_target, t, row->row, (size_t)d->target_col);
+
+        const long double *x = design_row_x(d, o);
+        if (row->status == ROW_SKIPPED) {
+            snprintf(status, sizeof status, "skipped: %s", row->reason);
+        } else {
+            double est, low, high;
+            linear_predict(m, x, &est, &low, &high);
+            int blank = 0, b2 = 0;
+            if (estimate_formula(&fb, d, m, &L, r)) {
+                st = error_nomem(err, NULL);
+                break;
+            }
+            if (isfinite(est))
+                writer_formula(s, r, L.c_est, fb.s, est, WFMT_FIXED2);
+            else
+                blank = 1;
+            if (row->status == ROW_FITTED) {
+                writer_cell_name(r, L.c_target, cell, sizeof cell);
+                writer_cell_name(r, L.c_est, cell2, sizeof cell2);
+                char rf[80];
+                snprintf(rf, sizeof rf, "=%s-%s", cell, cell2);
+                writer_formula(s, r, L.c_res, rf,
+                               m->residual[row->index], WFMT_FIXED2);
+            }
+            writer_number(s, r, L.c_low, low, WFMT_FIXED2, &b2);
+            writer_number(s, r, L.c_high, high, WFMT_FIXED2, &b2);
+            snprintf(status, sizeof status, "%s%s",
+                     row->status == ROW_FITTED ? "fitted" : "estimated",
+                     blank ? " (estimate not finite, left blank)"
+                     : b2 && m->df_resid > 0 ? " (interval not finite, left blank)"
+                                             : "");
+        }
+        writer_text(s, r, L.c_status, status, WFMT_NONE);
+        for (size_t i = 0; i < d->n_inputs; i++) {
+            const design_input *in = &d->inputs[i];
+            uint16_t ci = (uint16_t)(L.c_input0 + i);
+            if (in->is_category) {
+                if (in->level[o])
+                    writer_text(s, r, ci, in->level[o], WFMT_NONE);
+            } else if (isfinite((double)in->value[o])) {
+                writer_number(s, r, ci, (double)in->value[o], WFMT_NONE,
+                              NULL);
+            }
+        }
+    }
+    free(fb.s);
+    (void)warn;
+    if (st)
+        return st;
+    return writer_status(w, err);
+}
+
+/* "dropped: collinear with living_area, (intercept)" */
+static void drop_note(const design *d, const linear_model *m, size_t k,
+                      const long double *X, char *buf, size_t n)
+{
+    switch (m->drop[k]) {
+    case LINEAR_KEPT:
+        buf[0] = '\0';
+        return;
+    case LINEAR_DROP_ZERO:
+        snprintf(buf, n, "dropped: zero in every fitted row, so it cannot "
+                         "be estimated");
+        return;
+    case LINEAR_DROP_CONSTANT:
+        snprintf(buf, n, "dropped: constant (%.15Lg in every fitted row), "
+                         "so the intercept already covers it", X[k]);
+        return;
+    case LINEAR_DROP_COLLINEAR: {
+        size_t used = (size_t)snprintf(buf, n, "dropped: collinear with ");
+        for (size_t i = 0; i < m->n_with[k] && used < n; i++)
+            used += (size_t)snprintf(buf + used, n - used, "%s%s",
+                                     i ? ", " : "",
+                                     d->term[m->with[k * LINEAR_WITH_MAX + i]]);
+        if (used < n)
+            snprintf(buf + used, n - used, " (it adds nothing they do not "
+                                           "already give)");
+        return;
+    }
+    }
+}
+
+static rf_status write_coefficients(writer *w, const design *d,
+                                    const linear_model *m, rf_error *err)
+{
+    writer_sheet *s = writer_add_sheet(w, "Coefficients", err);
+    if (s == NULL)
+        return err->status;
+    static const char *const names[] = { "term", "estimate", "std error",
+                                         "t", "p value", "low", "high",
+                                         "note" };
+    const double widths[] = { 24, 16, 14, 10, 10, 16, 16, 60 };
+    const writer_format fmts[] = { WFMT_NONE, WFMT_SIG, WFMT_SIG, WFMT_FIXED4,
+                                   WFMT_PVALUE, WFMT_SIG, WFMT_SIG,
+                                   WFMT_NONE };
+    for (uint16_t c = 0; c < 8; c++)
+        writer_column(s, c, widths[c], fmts[c]);
+    writer_header(s, names, 8, (uint32_t)d->p);
+    char note[600];
+    for (size_t k = 0; k < d->p; k++) {
+        uint32_t r = (uint32_t)(k + 1);
+        writer_text(s, r, 0, d->term[k], WFMT_NONE);
+        drop_note(d, m, k, d->X, note, sizeof note);
+        if (m->drop[k] == LINEAR_KEPT) {
+            writer_number(s, r, 1, m->beta[k], WFMT_SIG, NULL);
+            writer_number(s, r, 2, m->se[k], WFMT_SIG, NULL);
+            writer_number(s, r, 3, m->t[k], WFMT_FIXED4, NULL);
+            writer_number(s, r, 4, m->pvalue[k], WFMT_PVALUE, NULL);
+            writer_number(s, r, 5, m->low[k], WFMT_SIG, NULL);
+            writer_number(s, r, 6, m->high[k], WFMT_SIG, NULL);
+            /* the note says which level a category term is compared with */
+            for (size_t i = 0; i < d->n_inputs; i++) {
+                const design_input *in = &d->inputs[i];
+                if (in->is_category && in->n_levels > 1
+                    && k >= in->first_term
+                    && k < in->first_term + in->n_levels - 1)
+                    snprintf(note, sizeof note,
+                             "compared with the reference level '%s'",
+                             in->levels[in->reference]);
+            }
+            if (m->df_resid > 0 && !(m->se[k] > 0))
+                snprintf(note, sizeof note, "exact fit: no residual "
+                                            "variation, so no t or p value");
+        }
+        writer_text(s, r, 7, note, WFMT_NONE);
+    }
+    return writer_status(w, err);
+}
+
+/* One Summary row. */
+static void srow(writer_sheet *s, uint32_t *r, const char *measure, double v,
+                 writer_format fmt, const char *note)
+{
+    writer_text(s, *r, 0, measure, WFMT_NONE);
+    int blank = 0;
+    writer_number(s, *r, 1, v, fmt, &blank);
+    if (note)
+        writer_text(s, *r, 2, note, WFMT_NONE);
+    else if (blank)
+        writer_text(s, *r, 2, "not defined for this fit", WFMT_NONE);
+    (*r)++;
+}
+
+static void trow(writer_sheet *s, uint32_t *r, const char *measure,
+                 const char *v, const char *note)
+{
+    writer_text(s, *r, 0, measure, WFMT_NONE);
+    writer_text(s, *r, 1, v, WFMT_NONE);
+    if (note)
+        writer_text(s, *r, 2, note, WFMT_WRAP);
+    (*r)++;
+}
+
+static rf_status write_summary(writer *w, const job *j, const table *data,
+                               const table *score, const design *d,
+                               const linear_model *m, rf_error *err)
+{
+    writer_sheet *s = writer_add_sheet(w, "Summary", err);
+    if (s == NULL)
+        return err->status;
+    static const char *const names[] = { "measure", "value", "note" };
+    writer_column(s, 0, 24, WFMT_NONE);
+    writer_column(s, 1, 20, WFMT_SIG);
+    writer_column(s, 2, 80, WFMT_NONE);
+    writer_header(s, names, 3, 26);
+    uint32_t r = 1;
+    char note[300];
+    size_t nread = table_rows(data) + (score ? table_rows(score) : 0);
+    size_t ndropped = d->p - m->rank;
+    trow(s, &r, "model", job_model_name(j->model), "ordinary least squares");
+    trow(s, &r, "target", j->target.name, NULL);
+    srow(s, &r, "rows read", (double)nread, WFMT_INTEGER, NULL);
+    srow(s, &r, "rows fitted", (double)d->n_fit, WFMT_INTEGER, NULL);
+    srow(s, &r, "rows skipped", (double)d->rows_skipped, WFMT_INTEGER,
+         d->rows_skipped ? "each skipped row's reason is in its Estimates status"
+                         : NULL);
+    srow(s, &r, "rows estimated", (double)d->n_est, WFMT_INTEGER,
+         "rows with a blank target, and rows of the score table");
+    snprintf(note, sizeof note, ndropped ? "%zu estimated; %zu dropped (see "
+                                           "Coefficients)" : "%zu estimated",
+             m->rank, ndropped);
+    srow(s, &r, "terms", (double)d->p, WFMT_INTEGER, note);
+    srow(s, &r, "r squared", m->r2, WFMT_SIG,
+         d->intercept ? NULL : "uncentred (no intercept): 1 - RSS / sum of y squared");
+    srow(s, &r, "adjusted r squared", m->adj_r2, WFMT_SIG, NULL);
+    srow(s, &r, "residual std error", m->sigma, WFMT_SIG, "sqrt(RSS / residual df)");
+    srow(s, &r, "rmse", m->rmse, WFMT_SIG, "sqrt(RSS / rows fitted)");
+    srow(s, &r, "mae", m->mae, WFMT_SIG, "mean absolute residual");
+    srow(s, &r, "f statistic", m->fstat, WFMT_SIG,
+         isinf(m->fstat) ? "infinite: the fit is exact" : NULL);
+    srow(s, &r, "f p value", m->fpvalue, WFMT_PVALUE, NULL);
+    srow(s, &r, "residual df", m->df_resid, WFMT_INTEGER, NULL);
+    srow(s, &r, "aic", m->aic, WFMT_SIG,
+         isfinite(m->aic) ? "-2 log likelihood + 2 (terms estimated + 1)"
+                          : "not defined: the residuals are all zero");
+    srow(s, &r, "bic", m->bic, WFMT_SIG,
+         isfinite(m->bic) ? "-2 log likelihood + ln(rows fitted) (terms estimated + 1)"
+                          : "not defined: the residuals are all zero");
+    srow(s, &r, "level", m->level, WFMT_PERCENT,
+         "confidence level of every low / high");
+    snprintf(note, sizeof note,
+             "of the inputs after scaling each to unit length; a term is "
+             "dropped below a relative size of %.0e", m->rank_tol);
+    srow(s, &r, "condition number", m->cond, WFMT_SCI, note);
+    int digits = (int)floor(-log10(m->cond * 1.0842021724855044e-19));
+    if (digits > 15 || !isfinite(m->cond))
+        digits = 15;
+    snprintf(note, sizeof note, "%s", m->refine_converged
+             ? "correct significant digits to expect in the estimates, from "
+               "the condition number and extended-precision refinement"
+             : "refinement did not converge: the design is too "
+               "ill-conditioned for full accuracy");
+    srow(s, &r, "accurate digits", digits, WFMT_INTEGER, note);
+    r++;
+    trow(s, &r, "caution", "an estimate is not an appraisal", CAUTION_PRICE);
+    return writer_status(w, err);
+}
+
+static rf_status write_job(writer *w, const job *j,
+                           const report_facts *facts,
+                           const rf_warnings *warn, rf_error *err)
+{
+    writer_sheet *s = writer_add_sheet(w, "Job", err);
+    if (s == NULL)
+        return err->status;
+    writer_column(s, 0, 24, WFMT_NONE);
+    writer_column(s, 1, 70, WFMT_NONE);
+    writer_column(s, 2, 20, WFMT_NONE);
+    writer_column(s, 3, 68, WFMT_NONE);
+    uint32_t r = 0;
+    writer_text(s, r++, 0, "job file", WFMT_BOLD);
+    /* the job's text, a line a row */
+    const char *p = j->text;
+    char line[4096];
+    while (p && *p) {
+        const char *e = strchr(p, '\n');
+        size_t len = e ? (size_t)(e - p) : strlen(p);
+        if (len && p[len - 1] == '\r')
+            len--;
+        if (len >= sizeof line)
+            len = sizeof line - 1;
+        memcpy(line, p, len);
+        line[len] = '\0';
+        writer_text(s, r, 0, line, WFMT_NONE);
+        r++;
+        p = e ? e + 1 : NULL;
+    }
+    r++;
+    writer_text(s, r++, 0, "run", WFMT_BOLD);
+    writer_text(s, r, 0, "rowfit version", WFMT_NONE);
+    writer_text(s, r++, 1, facts->version, WFMT_NONE);
+    writer_text(s, r, 0, "run at", WFMT_NONE);
+    writer_text(s, r++, 1, facts->started, WFMT_NONE);
+    writer_text(s, r, 0, "job file", WFMT_NONE);
+    writer_text(s, r++, 1, j->file, WFMT_NONE);
+    r++;
+    writer_text(s, r, 0, "input", WFMT_BOLD);
+    writer_text(s, r, 1, "file", WFMT_BOLD);
+    writer_text(s, r, 2, "bytes", WFMT_BOLD);
+    writer_text(s, r++, 3, "sha-256", WFMT_BOLD);
+    static const char *const role[2] = { "data", "score" };
+    for (int k = 0; k < 2; k++) {
+        if (facts->files[k] == NULL)
+            continue;
+        writer_text(s, r, 0, role[k], WFMT_NONE);
+        writer_text(s, r, 1, facts->files[k], WFMT_NONE);
+        writer_number(s, r, 2, (double)facts->info[k].size, WFMT_INTEGER,
+                      NULL);
+        writer_text(s, r++, 3, facts->info[k].sha256, WFMT_NONE);
+    }
+    r++;
+    writer_text(s, r++, 0, "warnings", WFMT_BOLD);
+    if (warn->n == 0)
+        writer_text(s, r++, 0, "none", WFMT_NONE);
+    for (size_t i = 0; i < warn->n; i++)
+        writer_text(s, r++, 0, warn->items[i], WFMT_NONE);
+    if (warn->dropped) {
+        char more[80];
+        snprintf(more, sizeof more, "and %zu more", warn->dropped);
+        writer_text(s, r++, 0, more, WFMT_NONE);
+    }
+    r++;
+    writer_text(s, r++, 0, "caution", WFMT_BOLD);
+    writer_text(s, r++, 0, CAUTION_PRICE, WFMT_NONE);
+    return writer_status(w, err);
+}
+
+rf_status report_linear(writer *w, const job *j, const table *data,
+                        const table *score, const design *d,
+                        const linear_model *m, const report_facts *facts,
+                        rf_warnings *warn, rf_error *err)
+{
+    rf_status st;
+    if ((st = write_estimates(w, j, data, score, d, m, warn, err)))
+        return st;
+    if ((st = write_coefficients(w, d, m, err)))
+        return st;
+    if ((st = write_summary(w, j, data, score, d, m, err)))
+        return st;
+    return write_job(w, j, facts, warn, err);
+}

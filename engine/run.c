@@ -1,0 +1,149 @@
+/*
+ * run.c: one job, end to end (see run.h).
+ */
+#include "run.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <time.h>
+
+#include "../io/csv.h"
+#include "../io/fileinfo.h"
+#include "../io/table.h"
+#include "../io/writer.h"
+#include "design.h"
+#include "job.h"
+#include "linear.h"
+#include "report.h"
+
+#ifndef ROWFIT_VERSION
+#define ROWFIT_VERSION "0.0.0"
+#endif
+
+/* A condition number past which the Summary's accurate-digits estimate
+ * falls below 10, worth a warning (common practice: 1e8). */
+#define COND_WARN 1e8
+
+/* Reads one table the job names. A file that is not there is the job's
+ * mistake (exit 1); one that exists but cannot be read is the system's. */
+static rf_status read_table(const job *j, const job_table *jt,
+                            const char *role, table **out, rf_warnings *warn,
+                            rf_error *err)
+{
+    struct stat sb;
+    if (stat(jt->resolved, &sb) != 0) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file, jt->line);
+        if (errno == ENOENT)
+            return error_set(err, RF_EINPUT, where,
+                             "the %s file '%s' does not exist (paths are "
+                             "relative to the job file's folder: %s)",
+                             role, jt->path, jt->resolved);
+        return error_set(err, RF_ESYSTEM, where, "cannot open '%s': %s",
+                         jt->path, strerror(errno));
+    }
+    if (jt->sheet) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file, jt->line);
+        return error_set(err, RF_EINPUT, where,
+                         "'sheet' applies to spreadsheet files; '%s' is read "
+                         "as CSV text", jt->path);
+    }
+    csv_options o = { jt->delimiter, jt->header };
+    return csv_read(jt->resolved, jt->path, &o, out, warn, err);
+}
+
+rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
+                  run_result *res, rf_error *err)
+{
+    memset(res, 0, sizeof *res);
+    job *j = NULL;
+    table *data = NULL, *score = NULL;
+    design *d = NULL;
+    linear_model *m = NULL;
+    writer *w = NULL;
+    rf_status st;
+
+    char started[64];
+    time_t now = time(NULL);
+    struct tm tmv;
+    strftime(started, sizeof started, "%Y-%m-%dT%H:%M:%S%z",
+             localtime_r(&now, &tmv));
+
+    if ((st = job_read(path, &j, err)))
+        goto done;
+    if ((st = read_table(j, &j->data, "data", &data, warn, err)))
+        goto done;
+    if (j->score.path
+        && (st = read_table(j, &j->score, "score", &score, warn, err)))
+        goto done;
+    if ((st = design_build(j, data, score, &d, warn, err)))
+        goto done;
+    res->rows_fitted = d->n_fit;
+    res->rows_estimated = d->n_est;
+    res->rows_skipped = d->rows_skipped;
+    res->terms = d->p;
+    if (opt->check_only)
+        goto done;
+
+    if ((st = linear_fit(d->X, d->y, d->n_fit, d->p, d->intercept, j->level,
+                         &m, err))) {
+        if (err->where[0] == '\0')
+            snprintf(err->where, sizeof err->where, "%s:%d", j->file,
+                     j->model_line);
+        goto done;
+    }
+    for (size_t k = 0; k < d->p; k++)
+        if (m->drop[k] != LINEAR_KEPT
+            && (st = error_warn(warn, NULL, "term '%s' was dropped; the "
+                                "Coefficients sheet says why", d->term[k])))
+            goto done;
+    if ((m->cond > COND_WARN || !m->refine_converged)
+        && (st = error_warn(warn, NULL,
+                            "the inputs are nearly collinear (condition number "
+                            "%.2g after scaling): expect about %d correct "
+                            "digits in the coefficients; centring inputs or "
+                            "fewer polynomial terms helps", m->cond,
+                            (int)fmin(15, floor(-log10(m->cond * 1.0842021724855044e-19))))))
+        goto done;
+
+    report_facts facts;
+    memset(&facts, 0, sizeof facts);
+    facts.version = ROWFIT_VERSION;
+    facts.started = started;
+    facts.files[0] = j->data.path;
+    if ((st = fileinfo_get(j->data.resolved, j->data.path, &facts.info[0], err)))
+        goto done;
+    if (j->score.path) {
+        facts.files[1] = j->score.path;
+        if ((st = fileinfo_get(j->score.resolved, j->score.path,
+                               &facts.info[1], err)))
+            goto done;
+    }
+    facts.warnings = warn;
+
+    const char *out = opt->output ? opt->output : j->output_resolved;
+    const char *inputs[3] = { j->data.resolved, path,
+                              j->score.path ? j->score.resolved : NULL };
+    if ((st = writer_open(out, opt->force, inputs, j->score.path ? 3 : 2,
+                          "rowfit " ROWFIT_VERSION, &w, err)))
+        goto done;
+    writer_set_warnings(w, warn);
+    if ((st = report_linear(w, j, data, score, d, m, &facts, warn, err)))
+        goto done;
+    st = writer_commit(w, err);
+    w = NULL;
+    if (st == RF_OK)
+        snprintf(res->written, sizeof res->written, "%s", out);
+done:
+    writer_abort(w);
+    linear_free(m);
+    design_free(d);
+    table_free(score);
+    table_free(data);
+    job_free(j);
+    return st;
+}
