@@ -1016,7 +1016,8 @@ int formula_eval(const formula *f, const fvalue *refs, fvalue *out,
         for (int i = 0; i < nargs; i++)
             if (a[i].v.type != FV_NUMBER)
                 return not_number(f, &a[i], why, whylen);
-        double x = a[0].v.num, y = nargs > 1 ? a[1].v.num : 0, r = 0;
+        /* Extended precision throughout (see formula.h). */
+        long double x = a[0].v.num, y = nargs > 1 ? a[1].v.num : 0, r = 0;
         switch (in->op) {
         case C_NEG: r = -x; break;
         case OP_ADD: r = x + y; break;
@@ -1030,17 +1031,17 @@ int formula_eval(const formula *f, const fvalue *refs, fvalue *out,
         case OP_POW:
             if (x == 0 && y < 0)
                 return why_set(why, whylen, "division by zero (0 ^ %s)",
-                            show_num(y, nb, sizeof nb));
+                            show_num((double)y, nb, sizeof nb));
             /* OpenFormula leaves 0^0 to the implementation and workbooks
              * differ (from memory); refusing keeps a live formula from
              * silently disagreeing with rowfit. */
             if (x == 0 && y == 0)
                 return why_set(why, whylen, "0 ^ 0 is undefined");
-            if (x < 0 && y != floor(y))
+            if (x < 0 && y != floorl(y))
                 return why_set(why, whylen, "(%s) ^ %s has no real value",
-                            show_num(x, nb, sizeof nb),
-                            show_num(y, nb2, sizeof nb2));
-            r = pow(x, y);
+                            show_num((double)x, nb, sizeof nb),
+                            show_num((double)y, nb2, sizeof nb2));
+            r = powl(x, y);
             break;
         case C_CALL:
             switch (in->arg) {
@@ -1048,35 +1049,35 @@ int formula_eval(const formula *f, const fvalue *refs, fvalue *out,
             case FN_LOG10:
                 if (x <= 0)
                     return why_set(why, whylen, "%s of %s", fns[in->arg].name,
-                                show_num(x, nb, sizeof nb));
-                r = in->arg == FN_LN ? log(x) : log10(x);
+                                show_num((double)x, nb, sizeof nb));
+                r = in->arg == FN_LN ? logl(x) : log10l(x);
                 break;
-            case FN_EXP: r = exp(x); break;
+            case FN_EXP: r = expl(x); break;
             case FN_SQRT:
                 if (x < 0)
                     return why_set(why, whylen, "SQRT of %s",
-                                show_num(x, nb, sizeof nb));
-                r = sqrt(x);
+                                show_num((double)x, nb, sizeof nb));
+                r = sqrtl(x);
                 break;
-            case FN_ABS: r = fabs(x); break;
+            case FN_ABS: r = fabsl(x); break;
             case FN_MIN:
             case FN_MAX:
                 r = x;
                 for (int i = 1; i < nargs; i++)
-                    r = in->arg == FN_MIN ? fmin(r, a[i].v.num)
-                                          : fmax(r, a[i].v.num);
+                    r = in->arg == FN_MIN ? fminl(r, a[i].v.num)
+                                          : fmaxl(r, a[i].v.num);
                 break;
-            case FN_ROUND: r = round_digits(x, y); break;
+            case FN_ROUND: r = round_digits((double)x, (double)y); break;
             case FN_YEAR:
             case FN_MONTH:
             case FN_DAY: {
                 int yy, mm, dd;
                 /* A time of day is a fraction: the day is the floor. */
-                if (table_serial_date(floor(x), &yy, &mm, &dd) != 0)
+                if (table_serial_date((double)floorl(x), &yy, &mm, &dd) != 0)
                     return why_set(why, whylen, "%s of %s: not a date (serial "
                                 "days run from 1 to 2958465)",
                                 fns[in->arg].name,
-                                show_num(x, nb, sizeof nb));
+                                show_num((double)x, nb, sizeof nb));
                 r = in->arg == FN_YEAR ? yy : in->arg == FN_MONTH ? mm : dd;
                 break;
             }
@@ -1087,7 +1088,7 @@ int formula_eval(const formula *f, const fvalue *refs, fvalue *out,
         default:
             assert(!"unreachable opcode");
         }
-        if (!isfinite(r))
+        if (!isfinite((double)r))
             return why_set(why, whylen, "result is too large");
         sp -= nargs;
         st[sp++] = (slot){{FV_NUMBER, r, NULL}, -1};

@@ -746,9 +746,16 @@ rf_status csv_read(const char *path, const char *name, const csv_options *opt,
         size_t i = 0;
         if (first) {
             first = 0;
-            if (memchr(buf, 0, n) != NULL) {
-                s = error_set(err, RF_EINPUT, name,
-                              "binary file, not CSV text%s",
+            const unsigned char *nul = memchr(buf, 0, n);
+            if (nul != NULL) {
+                unsigned line = 1;
+                for (const unsigned char *q = buf; q < nul; q++)
+                    line += *q == '\n';
+                char where[ERROR_WHERE_MAX];
+                snprintf(where, sizeof where, "%s:%u", name, line);
+                s = error_set(err, RF_EINPUT, where,
+                              "binary file, not CSV text (a NUL byte on this "
+                              "line)%s",
                               looks_like_workbook(buf, n) ?
                               " (it looks like a spreadsheet workbook; give "
                               "its .xlsx, .xls or .ods name)" : "");

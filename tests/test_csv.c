@@ -544,10 +544,10 @@ static void test_csv_rejects_binary_file(void **state)
 {
     fixture *f = *state;
     write_bytes(f, "id\0\x01\x02,x\n", 9);
-    expect_error(f, RF_EINPUT, "sales.csv", "binary file, not CSV text");
+    expect_error(f, RF_EINPUT, "sales.csv:1", "binary file, not CSV text");
     /* A workbook saved under a .csv name gets a hint. */
     write_bytes(f, "PK\x03\x04\x14\0\0\0", 8);
-    expect_error(f, RF_EINPUT, "sales.csv", "looks like a spreadsheet");
+    expect_error(f, RF_EINPUT, "sales.csv:1", "looks like a spreadsheet");
 }
 
 static void test_csv_rejects_nul_after_first_block(void **state)

@@ -120,7 +120,11 @@ def main():
                 result(False, "seed %d: gen-houses exit %d: %s" % (seed, g.returncode, g.stderr.strip()))
                 continue
             shutil.copy(job_src, d)
-            p = rowfit(["-q", "house-prices.job"], d)
+            try:
+                p = rowfit(["-q", "house-prices.job"], d)
+            except (OSError, subprocess.SubprocessError) as e:
+                result(False, "seed %d: cannot run rowfit: %s" % (seed, e))
+                continue
             out = os.path.join(d, "house-prices-results.xlsx")
             if p.returncode != 0 or not os.path.exists(out):
                 result(False, "seed %d: rowfit %s" % (seed, describe(p)))

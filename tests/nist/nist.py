@@ -262,7 +262,7 @@ def main(argv):
             failed += f
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
-    print("nist: %d passed, %d failed" % (passed, failed))
+    print("%d passed, %d failed" % (passed, failed))
     return 1 if failed else 0
 
 
