@@ -29,6 +29,7 @@ import subprocess
 import sys
 import tempfile
 
+sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from common import REPO, ROWFIT, describe, load, records, rowfit, value  # noqa: E402
 

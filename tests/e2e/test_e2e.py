@@ -30,6 +30,7 @@ import sys
 import tempfile
 from fractions import Fraction
 
+sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from common import (REPO, ROWFIT, Runner, close, describe, load,  # noqa: E402
                     records, rowfit, table, value)
