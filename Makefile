@@ -57,6 +57,11 @@ $(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h $(LIB_OBJ)
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS) -lcmocka
 
+# The demo data generator (its output is committed in workbooks/).
+$(BUILD)/gen-houses: workbooks/gen-houses.c
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) $(LDFLAGS) -o $@ $< -lgsl -lopenblas -lm
+
 -include $(shell find $(BUILD) -name '*.d' 2>/dev/null)
 
 deps:
@@ -67,8 +72,8 @@ demo: deps
 	./rowfit workbooks/house-prices.job
 
 check: deps
-	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN)
-	@ROWFIT=$(PROG) BUILD=$(BUILD) sh tests/run.sh $(TEST_BIN)
+	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN) $(BUILD)/gen-houses
+	@ROWFIT=$(PROG) BUILD=$(BUILD) GEN=$(BUILD)/gen-houses sh tests/run.sh $(TEST_BIN)
 
 unit: $(TEST_BIN)
 	@for t in $(TEST_BIN); do $$t || exit 1; done

@@ -634,35 +634,35 @@ rf_status design_build(const job *j, const table *data, const table *score,
                     row->status = ROW_FITTED;
                 }
             }
-            /* the inputs, in job order */
-            for (size_t k = 0; k < ni && !bad; k++) {
+            /* the inputs, in job order; all are read, so a skipped row
+             * still shows what it has, and the first problem is its reason */
+            for (size_t k = 0; k < ni; k++) {
                 design_input *in = &d->inputs[k];
                 fvalue v;
-                const char *w = NULL;
+                const char *w = NULL, *kbad = NULL;
+                char kwhy[REASON_MAX];
                 if (source_value(c, r, src[s][k], &v, &w)) {
-                    snprintf(why, sizeof why, "%s", w);
-                    bad = why;
-                    break;
-                }
-                if (in->is_category) {
+                    snprintf(kwhy, sizeof kwhy, "%s", w);
+                    kbad = kwhy;
+                } else if (in->is_category) {
                     const char *text = level_text(in->name, &v, lbuf,
-                                                  sizeof lbuf, why, sizeof why);
-                    if (text == NULL) {
-                        bad = why;
-                        bad_col = src[s][k].col;
-                        break;
-                    }
-                    if ((in->level[o] = intern_add(&lev[k], text)) == NULL) {
+                                                  sizeof lbuf, kwhy,
+                                                  sizeof kwhy);
+                    if (text == NULL)
+                        kbad = kwhy;
+                    else if ((in->level[o] = intern_add(&lev[k], text))
+                             == NULL) {
                         st = nomem(err);
                         goto done;
                     }
-                } else {
-                    if ((bad = not_number(in->name, &v, why, sizeof why))) {
-                        bad_col = src[s][k].col;
-                        in->value[o] = NAN;
-                        break;
-                    }
+                } else if ((kbad = not_number(in->name, &v, kwhy,
+                                              sizeof kwhy)) == NULL) {
                     in->value[o] = v.num;
+                }
+                if (kbad && !bad) {
+                    snprintf(why, sizeof why, "%s", kbad);
+                    bad = why;
+                    bad_col = w ? -1 : src[s][k].col;
                 }
             }
             if (bad) {
