@@ -6,6 +6,7 @@
  */
 #include <stdio.h>
 #include <string.h>
+#include <unistd.h>
 
 #include <gsl/gsl_errno.h>
 
@@ -36,6 +37,18 @@ static int bad_usage(const char *fmt, const char *arg)
     fprintf(stderr, fmt, arg);
     fprintf(stderr, "\nrowfit: see 'rowfit --help'\n");
     return 2;
+}
+
+/* Progress on a terminal: one line per stage, with rows per second. */
+static void show_progress(void *ctx, const char *stage, size_t rows,
+                          double seconds)
+{
+    const char *job = ctx;
+    if (seconds > 0)
+        fprintf(stderr, "rowfit: %s: %s %zu rows in %.2f s (%.0f rows/s)\n",
+                job, stage, rows, seconds, rows / seconds);
+    else
+        fprintf(stderr, "rowfit: %s: %s %zu rows\n", job, stage, rows);
 }
 
 static void print_error(const rf_error *e)
@@ -100,7 +113,11 @@ int main(int argc, char **argv)
 
     int worst = 0;
     for (int k = 0; k < njobs; k++) {
-        run_options opt = { output, check, force };
+        run_options opt = { output, check, force, NULL, NULL };
+        if (!quiet && isatty(STDERR_FILENO)) {
+            opt.progress = show_progress;
+            opt.progress_ctx = (void *)jobs[k];
+        }
         rf_warnings warn = { 0 };
         rf_error err = { 0 };
         run_result res;

@@ -56,9 +56,27 @@ static rf_status read_table(const job *j, const job_table *jt,
     return csv_read(jt->resolved, jt->path, &o, out, warn, err);
 }
 
+static double now_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
+/* Reports a finished stage and restarts the clock. */
+static void stage(const run_options *opt, const char *what, size_t rows,
+                  double *t0)
+{
+    double t = now_seconds();
+    if (opt->progress)
+        opt->progress(opt->progress_ctx, what, rows, t - *t0);
+    *t0 = t;
+}
+
 rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
                   run_result *res, rf_error *err)
 {
+    double t0 = now_seconds();
     memset(res, 0, sizeof *res);
     job *j = NULL;
     table *data = NULL, *score = NULL;
@@ -80,8 +98,11 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
     if (j->score.path
         && (st = read_table(j, &j->score, "score", &score, warn, err)))
         goto done;
+    stage(opt, "read", table_rows(data) + (score ? table_rows(score) : 0),
+          &t0);
     if ((st = design_build(j, data, score, &d, warn, err)))
         goto done;
+    stage(opt, "checked", d->n_rows, &t0);
     res->rows_fitted = d->n_fit;
     res->rows_estimated = d->n_est;
     res->rows_skipped = d->rows_skipped;
@@ -96,6 +117,7 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
                      j->model_line);
         goto done;
     }
+    stage(opt, "fitted", d->n_fit, &t0);
     for (size_t k = 0; k < d->p; k++)
         if (m->drop[k] != LINEAR_KEPT
             && (st = error_warn(warn, NULL, "term '%s' was dropped; the "
@@ -136,6 +158,7 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
         goto done;
     st = writer_commit(w, err);
     w = NULL;
+    stage(opt, "wrote", d->n_rows, &t0);
     if (st == RF_OK)
         snprintf(res->written, sizeof res->written, "%s", out);
 done:

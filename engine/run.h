@@ -11,10 +11,17 @@
 
 #include "../io/error.h"
 
+/* Called as each stage of a run ends: what was done, on how many rows, in
+ * how many seconds. main() prints it when stderr is a terminal. */
+typedef void (*run_progress)(void *ctx, const char *stage, size_t rows,
+                             double seconds);
+
 typedef struct run_options {
     const char *output;  /* -o PATH, or NULL for the job's own choice */
     int check_only;      /* `rowfit check`: read and check, fit nothing, write nothing */
     int force;           /* --force */
+    run_progress progress;  /* NULL: none */
+    void *progress_ctx;
 } run_options;
 
 /* What a run did, for the line main() prints. */
