@@ -1,6 +1,7 @@
 # rowfit: build, demo, tests, benchmark. See README.md and DEVELOPERS.md.
 #   make            build ./rowfit
-#   make deps       install missing Debian packages (runs apt-get as root)
+#   make deps       install missing Debian packages to build and run (apt-get, as root)
+#   make test-deps  the same, plus what the tests need (make check does this)
 #   make demo       build and run the demo job (workbooks/house-prices.job)
 #   make check      build and run every test; SANITIZE=1 under ASan+UBSan
 #   make bench      speed and memory benchmark (not part of check)
@@ -28,7 +29,7 @@ endif
 # Debian packages: the build needs the -dev ones, the tests the rest.
 DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
              libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev nettle-dev
-DEB_TEST  := libcmocka-dev python3 python3-openpyxl
+DEB_TEST  := libcmocka-dev python3 python3-openpyxl libreoffice-calc-nogui
 
 IO_SRC     := $(sort $(wildcard io/*.c))
 ENGINE_SRC := $(sort $(filter-out engine/main.c,$(wildcard engine/*.c)))
@@ -42,7 +43,7 @@ else
 PROG := rowfit
 endif
 
-.PHONY: all deps demo check unit e2e bench install clean
+.PHONY: all deps test-deps demo check unit bench install clean
 all: $(PROG)
 
 $(PROG): $(BUILD)/engine/main.o $(LIB_OBJ)
@@ -64,14 +65,18 @@ $(BUILD)/gen-houses: workbooks/gen-houses.c
 
 -include $(shell find $(BUILD) -name '*.d' 2>/dev/null)
 
+# What building and running need; the tests need more (test-deps).
 deps:
+	@sh tools/deps.sh $(DEB_BUILD)
+
+test-deps:
 	@sh tools/deps.sh $(DEB_BUILD) $(DEB_TEST)
 
 demo: deps
 	@$(MAKE) --no-print-directory all
 	./rowfit workbooks/house-prices.job
 
-check: deps
+check: test-deps
 	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN) $(BUILD)/gen-houses
 	@ROWFIT=$(PROG) BUILD=$(BUILD) GEN=$(BUILD)/gen-houses sh tests/run.sh $(TEST_BIN)
 

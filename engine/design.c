@@ -338,7 +338,7 @@ static void ctx_free(ctx *c, size_t nd)
 
 /* Resolves every derive's references in table t. */
 static rf_status ctx_init(ctx *c, const job *j, const table *t, formula **f,
-                          rf_error *err)
+                          const unsigned char *needed, rf_error *err)
 {
     size_t nd = j->n_derives;
     memset(c, 0, sizeof *c);
@@ -357,7 +357,7 @@ static rf_status ctx_init(ctx *c, const job *j, const table *t, formula **f,
         c->refs[k] = calloc(nr ? nr : 1, sizeof **c->refs);
         if (c->refs[k] == NULL)
             return nomem(err);
-        for (size_t i = 0; i < nr; i++) {
+        for (size_t i = 0; i < nr && needed[k]; i++) {
             const char *name = formula_ref(f[k], i);
             source s = resolve(j, t, name, k);
             if (s.col < 0 && s.derive < 0) {
@@ -431,6 +431,23 @@ const long double *design_row_x(const design *d, size_t out_row)
     return NULL;
 }
 
+size_t design_input_terms(const design_input *in)
+{
+    if (!in->is_category)
+        return 1;
+    if (in->reference == DESIGN_NO_REFERENCE)
+        return in->n_levels;
+    return in->n_levels ? in->n_levels - 1 : 0;
+}
+
+const char *design_term_level(const design_input *in, size_t k)
+{
+    size_t lv = k - in->first_term;
+    if (lv >= in->reference)   /* never true without a reference */
+        lv++;
+    return in->levels[lv];
+}
+
 static int cmp_str(const void *a, const void *b)
 {
     return strcmp(*(const char *const *)a, *(const char *const *)b);
@@ -477,6 +494,7 @@ rf_status design_build(const job *j, const table *data, const table *score,
     intern *lev = NULL;
     source *src[2] = { NULL, NULL };
     source tsrc = { -1, -1 };
+    unsigned char *needed = NULL;
     design *d = calloc(1, sizeof *d);
     if (f == NULL || d == NULL) {
         st = nomem(err);
@@ -506,10 +524,36 @@ rf_status design_build(const job *j, const table *data, const table *score,
                 goto done;
             }
     }
+    /* Every derive must make sense in data; in score only those the
+     * inputs use, directly or through other derives (a score table has no
+     * target, so a derive of the target cannot be computed there).
+     * Derives use only earlier ones, so one backward pass finds them. */
+    needed = calloc(2 * (nd ? nd : 1), 1);
+    if (needed == NULL) {
+        st = nomem(err);
+        goto done;
+    }
+    memset(needed, 1, nd);
+    unsigned char *need_score = needed + (nd ? nd : 1);
+    for (size_t k = 0; k < nd; k++)
+        for (size_t i = 0; i < j->n_inputs + j->n_categories; i++) {
+            const char *in = i < j->n_inputs
+                                 ? j->inputs[i].name
+                                 : j->categories[i - j->n_inputs].name;
+            if (strcmp(in, j->derives[k].name) == 0)
+                need_score[k] = 1;
+        }
+    for (size_t k = nd; k-- > 0;)
+        for (size_t i = 0; need_score[k] && i < formula_nrefs(f[k]); i++) {
+            source s = resolve(j, NULL, formula_ref(f[k], i), k);
+            if (s.derive >= 0)
+                need_score[s.derive] = 1;
+        }
     const table *tabs[2] = { data, score };
     size_t ntab = score ? 2 : 1;
     for (size_t s = 0; s < ntab; s++)
-        if ((st = ctx_init(&cx[s], j, tabs[s], f, err)))
+        if ((st = ctx_init(&cx[s], j, tabs[s], f, s ? need_score : needed,
+                           err)))
             goto done;
 
     /* inputs, target, id */
@@ -699,6 +743,7 @@ rf_status design_build(const job *j, const table *data, const table *score,
                     in->count[intern_find(in, d->inputs[k].level[o2])]++;
                 }
     size_t p = j->intercept ? 1 : 0;
+    int first_category_seen = 0;
     for (size_t k = 0; k < ni; k++) {
         design_input *in = &d->inputs[k];
         in->first_term = p;
@@ -726,14 +771,20 @@ rf_status design_build(const job *j, const table *data, const table *score,
                 best = l;
             }
         }
+        /* Without an intercept the first category keeps every level, so
+         * its levels carry the constant; later ones still need a
+         * reference to stay identifiable (common practice). */
         in->reference = best;
-        if (nl == 1
+        if (!j->intercept && !first_category_seen)
+            in->reference = DESIGN_NO_REFERENCE;
+        first_category_seen = 1;
+        if (nl == 1 && in->reference != DESIGN_NO_REFERENCE
             && (st = error_warn(warn, NULL,
                                 "category '%s' has a single level ('%s') in "
                                 "the fitted rows, so it adds no term",
                                 in->name, in->levels[0])))
             goto done;
-        p += nl > 0 ? nl - 1 : 0;
+        p += in->reference == DESIGN_NO_REFERENCE ? nl : nl > 0 ? nl - 1 : 0;
     }
     d->p = p;
 
@@ -815,6 +866,13 @@ rf_status design_build(const job *j, const table *data, const table *score,
                        "cannot be fitted)%s", nfit, p, tail);
         goto done;
     }
+    if (p == 0) {
+        job_where(j, j->model_line, where, sizeof where);
+        st = error_set(err, RF_EINPUT, where,
+                       "the model has no terms: no intercept, and no input "
+                       "adds a term");
+        goto done;
+    }
     if (nfit > SIZE_MAX / sizeof(long double) / p) {
         st = nomem(err);
         goto done;
@@ -870,6 +928,7 @@ done:
         for (size_t k = 0; k < nd; k++)
             formula_free(f[k]);
     free(f);
+    free(needed);
     if (lev && d) {
         d->store = lev;   /* design_free frees the interned levels */
         lev = NULL;

@@ -15,6 +15,8 @@
 #include "../io/table.h"
 #include "job.h"
 
+#define DESIGN_NO_REFERENCE ((size_t)-1)
+
 typedef enum design_status { ROW_FITTED, ROW_ESTIMATED, ROW_SKIPPED } design_status;
 
 typedef enum design_source { SOURCE_DATA = 0, SOURCE_SCORE = 1 } design_source;
@@ -38,7 +40,9 @@ typedef struct design_input {
                              (owned by the design), NULL when unusable */
     char **levels;        /* category: levels seen in fitted rows, sorted */
     size_t n_levels;
-    size_t reference;     /* category: index of the reference level */
+    size_t reference;     /* category: index of the reference level, or
+                             DESIGN_NO_REFERENCE (first category of a
+                             model without intercept: every level a term) */
     size_t first_term;    /* index of the input's first term */
 } design_input;
 
@@ -65,7 +69,7 @@ typedef struct design {
     void *store;          /* private: the interned level strings */
 } design;
 
-/* Builds the design. score may be NULL. Errors (RF_EINPUT) name the job
+/* Builds the design. score may be NULL; warn must not be. Errors (RF_EINPUT) name the job
  * line or the cell: an unknown column (with a suggestion), a derive that
  * does not parse, a name defined twice, an unusable cell under
  * `missing stop`, too few usable rows. Warnings (a category with a single
@@ -73,6 +77,14 @@ typedef struct design {
 rf_status design_build(const job *j, const table *data, const table *score,
                        design **out, rf_warnings *warn, rf_error *err);
 void design_free(design *d);  /* accepts NULL */
+
+/* How many terms an input has: 1 for a number; for a category its levels
+ * less the reference (all of them with DESIGN_NO_REFERENCE). */
+size_t design_input_terms(const design_input *in);
+
+/* The level of a category term: term k of the design, k in
+ * [in->first_term, in->first_term + design_input_terms(in)). */
+const char *design_term_level(const design_input *in, size_t k);
 
 /* The row's values of X (fitted) or Xe (estimated) rows; NULL if skipped. */
 const long double *design_row_x(const design *d, size_t out_row);

@@ -136,22 +136,18 @@ static int estimate_formula(strbuf *b, const design *d, const linear_model *m,
         /* which input does term k belong to */
         for (size_t i = 0; i < d->n_inputs; i++) {
             const design_input *in = &d->inputs[i];
-            size_t nterms = in->is_category
-                                ? (in->n_levels ? in->n_levels - 1 : 0) : 1;
-            if (k < in->first_term || k >= in->first_term + nterms)
+            if (k < in->first_term
+                || k >= in->first_term + design_input_terms(in))
                 continue;
             col_name((uint16_t)(L->c_input0 + i), col, sizeof col);
             snprintf(cell, sizeof cell, "%s%u", col, r + 1);
             if (!in->is_category) {
                 if (sb_add(b, "*%s", cell))
                     return -1;
-            } else {
-                size_t lv = k - in->first_term;
-                if (lv >= in->reference)
-                    lv++;
-                if (sb_add(b, "*(%s=", cell) || sb_quoted(b, in->levels[lv])
-                    || sb_add(b, ")"))
-                    return -1;
+            } else if (sb_add(b, "*(%s=", cell)
+                       || sb_quoted(b, design_term_level(in, k))
+                       || sb_add(b, ")")) {
+                return -1;
             }
         }
     }
@@ -353,9 +349,13 @@ static rf_status write_coefficients(writer *w, const design *d,
             /* the note says which level a category term is compared with */
             for (size_t i = 0; i < d->n_inputs; i++) {
                 const design_input *in = &d->inputs[i];
-                if (in->is_category && in->n_levels > 1
-                    && k >= in->first_term
-                    && k < in->first_term + in->n_levels - 1)
+                if (!in->is_category || k < in->first_term
+                    || k >= in->first_term + design_input_terms(in))
+                    continue;
+                if (in->reference == DESIGN_NO_REFERENCE)
+                    snprintf(note, sizeof note, "no intercept: the level's "
+                             "own constant, not a difference");
+                else
                     snprintf(note, sizeof note,
                              "compared with the reference level '%s'",
                              in->levels[in->reference]);

@@ -217,7 +217,9 @@ static void test_linear_four_point_line_matches_closed_form(void **state)
 
     /* t with 2 degrees of freedom has a closed form: the two-sided tail
      * of |t| is 1 - |t| / sqrt(2 + t^2) (Abramowitz & Stegun, Handbook of
-     * Mathematical Functions, 26.7.4 with nu = 2, A(t|2) = t/sqrt(2+t^2)). */
+     * Mathematical Functions, 26.7.4 with nu = 2, A(t|2) = t/sqrt(2+t^2);
+     * equation number from memory, the form follows by integrating the
+     * nu = 2 density (1/2)(1 + t^2/2)^(-3/2)). */
     for (size_t j = 0; j < 2; j++) {
         double t = m->t[j];
         assert_close(m->pvalue[j], 1 - fabs(t) / sqrt(2 + t * t), 1e-9, 1e-15);
@@ -609,8 +611,9 @@ static void test_linear_f_and_information_criteria(void **state)
     assert_close(m->fstat, f, 1e-12, 0);
     /* With 2 numerator degrees of freedom the F tail is closed-form:
      * F(2, d) relates to the incomplete beta I_x(1, d/2) with
-     * x = 2f / (2f + d) (Abramowitz & Stegun 26.6.2), and
-     * I_x(1, b) = 1 - (1 - x)^b, so Q = (d / (d + 2f))^(d/2). */
+     * x = 2f / (2f + d) (Abramowitz & Stegun 26.6.2, number from memory),
+     * and I_x(1, b) = 1 - (1 - x)^b by direct integration, so
+     * Q = (d / (d + 2f))^(d/2). */
     assert_close(m->fpvalue, pow(dfr / (dfr + 2 * f), dfr / 2), 1e-9, 1e-300);
 
     /* Gaussian log-likelihood at the ML variance RSS/n, the variance

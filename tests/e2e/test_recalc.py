@@ -24,8 +24,10 @@ a score table.
 
 Without soffice the suite prints SKIP and exits 0, unless
 ROWFIT_REQUIRE_SOFFICE=1 (then a missing soffice is a failure).
+$SOFFICE names the program; ROWFIT_KEEP_TMP=1 keeps the temporary folder.
 Usage: ROWFIT=./rowfit python3 tests/e2e/test_recalc.py [NAME-FRAGMENT...]
 """
+import atexit
 import math
 import os
 import re
@@ -52,8 +54,9 @@ POISON = -987654.321   # no formula of this job can give it
 
 # Header = line 1. P-08 has a blank slope (skipped), P-13 and P-14 have no
 # yield yet (estimated). Zone names: one plain, one with a space, one with a
-# space and double quotes (CSV doubles a quote inside a quoted field).
-PLOTS = """\
+# space and double quotes (CSV doubles a quote inside a quoted field;
+# RFC 4180 section 2). ''' strings: the data holds """.
+PLOTS = '''\
 plot,yield,rain,slope,area,zone
 P-01,41.2,310,2.5,1.20,East
 P-02,38.7,295,4.0,0.95,"North ""Hill"""
@@ -69,14 +72,14 @@ P-11,37.9,290,4.5,0.90,"North ""Hill"""
 P-12,46.1,355,0.8,1.65,West Flats
 P-13,,315,2.5,1.25,"North ""Hill"""
 P-14,,345,1.0,1.55,West Flats
-"""
+'''
 
-NEW_PLOTS = """\
+NEW_PLOTS = '''\
 plot,rain,slope,area,zone
 N-1,300,3.0,1.00,East
 N-2,360,0.8,1.70,"North ""Hill"""
 N-3,325,2.2,1.35,West Flats
-"""
+'''
 
 JOB = """\
 # Invented plots of a fictional farm, for rowfit's recalculation test
@@ -98,10 +101,12 @@ QUOTED = 'North "Hill"'
 
 
 def find_soffice():
-    s = os.environ.get("SOFFICE") or shutil.which("soffice")
-    if not s and os.path.exists("/usr/lib/libreoffice/program/soffice"):
-        s = "/usr/lib/libreoffice/program/soffice"
-    return s
+    """$SOFFICE, else soffice on PATH or where Debian puts it; None if none."""
+    for s in (os.environ.get("SOFFICE"), shutil.which("soffice"),
+              "/usr/lib/libreoffice/program/soffice"):
+        if s and os.access(s, os.X_OK):
+            return s
+    return None
 
 
 XCU = """\
@@ -173,6 +178,8 @@ def setup():
         return STATE
     try:
         tmp = tempfile.mkdtemp(prefix="rowfit-recalc-")
+        if os.environ.get("ROWFIT_KEEP_TMP") != "1":
+            atexit.register(shutil.rmtree, tmp, True)
         for name, text in (("plots.csv", PLOTS), ("new-plots.csv", NEW_PLOTS),
                            ("plots.job", JOB)):
             with open(os.path.join(tmp, name), "w") as f:
@@ -223,6 +230,14 @@ def formula_cells(sheet=None):
     return out
 
 
+def letters(coord):
+    return openpyxl.utils.cell.coordinate_from_string(coord)[0]
+
+
+def in_column(col):
+    return [sc for sc in formula_cells("Estimates") if letters(sc[1]) == col]
+
+
 def is_number(v):
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
@@ -239,8 +254,9 @@ def scale_of(sheet, coord):
     follows their size, not its own (common practice in floating-point
     error analysis): its floor is the row's target value."""
     ws = setup()["ours"][sheet]
-    if sheet == "Estimates" and coord[0] == column_of(sheet, "residual"):
-        t = ws[column_of(sheet, "yield") + coord[1:]].value
+    if sheet == "Estimates" and letters(coord) == column_of(sheet, "residual"):
+        row = openpyxl.utils.cell.coordinate_from_string(coord)[1]
+        t = ws["%s%d" % (column_of(sheet, "yield"), row)].value
         return abs(t) if is_number(t) else 0.0
     return 0.0
 
@@ -318,21 +334,25 @@ def test_libreoffice_recalculates_poisoned_cache():
 @test
 def test_recalculated_estimates_equal_cached():
     col = column_of("Estimates", "estimate")
-    compare([sc for sc in formula_cells("Estimates") if sc[1][0] == col],
-            setup()["theirs"], "estimate")
+    compare(in_column(col), setup()["theirs"], "estimate")
 
 
 @test
 def test_recalculated_residuals_equal_cached():
     col = column_of("Estimates", "residual")
-    compare([sc for sc in formula_cells("Estimates") if sc[1][0] == col],
-            setup()["theirs"], "residual")
+    compare(in_column(col), setup()["theirs"], "residual")
 
 
 @test
 def test_recalculated_formulas_in_every_sheet_equal_cached():
     # Covers formulas rowfit may add elsewhere later.
     compare(formula_cells(), setup()["theirs"], "all formula")
+
+
+def term_sum(coef, r):
+    """The number inputs' part of an estimate. Summed in another order than
+    the formula, so it is compared to 1e-9, not 1e-12."""
+    return sum(coef[k] * value(r[k]) for k in ("wet", "slope", "area"))
 
 
 @test
@@ -361,11 +381,6 @@ def test_quoted_level_counts_in_libreoffice():
             (est, i, got, want))
         n += 1
     assert n == 5, "expected 5 North \"Hill\" rows, checked %d" % n
-
-
-def term_sum(coef, r):
-    # 1e-9 above, not 1e-12: this sum's order differs from the formula's.
-    return sum(coef[k] * value(r[k]) for k in ("wet", "slope", "area"))
 
 
 @test
