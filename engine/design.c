@@ -418,6 +418,9 @@ void design_free(design *d)
         free(lev);
     }
     free(d->inputs);
+    for (size_t k = 0; d->formulas && k < d->n_formulas; k++)
+        formula_free(d->formulas[k]);
+    free(d->formulas);
     free(d);
 }
 
@@ -915,6 +918,11 @@ rf_status design_build(const job *j, const table *data, const table *score,
         }
     }
 
+    for (size_t k = 0; k < ni; k++)
+        d->inputs[k].derive = src[0][k].derive;
+    d->formulas = f;      /* the report prints them as live formulas */
+    d->n_formulas = nd;
+    f = NULL;
     d->store = lev;
     lev = NULL;
     *out = d;

@@ -44,6 +44,7 @@ typedef struct design_input {
                              DESIGN_NO_REFERENCE (first category of a
                              model without intercept: every level a term) */
     size_t first_term;    /* index of the input's first term */
+    long derive;          /* the job's derive that computes it, or -1 */
 } design_input;
 
 typedef struct design {
@@ -66,6 +67,8 @@ typedef struct design {
     size_t rows_skipped;
     long target_col;      /* the target's column in data, -1 if derived */
     long id_col_data, id_col_score;  /* id column, -1 if none */
+    struct formula **formulas;  /* the job's derives, parsed, in job order */
+    size_t n_formulas;
     void *store;          /* private: the interned level strings */
 } design;
 

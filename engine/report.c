@@ -9,6 +9,8 @@
  */
 #include "report.h"
 
+#include "formula.h"
+
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -111,7 +113,110 @@ typedef struct est_layout {
         c_status, c_input0;
     int has_id;
     size_t ncols;
+    /* table columns that derived inputs read, shown after the inputs so
+     * the derived cells can be live formulas over them */
+    uint16_t c_extra0;
+    size_t n_extra;
+    const char **extra;
+    long *extra_col[2];   /* their column in data and in score, or -1 */
 } est_layout;
+
+static long input_named(const design *d, const char *name)
+{
+    for (size_t i = 0; i < d->n_inputs; i++)
+        if (strcmp(d->inputs[i].name, name) == 0)
+            return (long)i;
+    return -1;
+}
+
+static long derive_named(const job *j, const char *name)
+{
+    for (size_t k = 0; k < j->n_derives; k++)
+        if (strcmp(j->derives[k].name, name) == 0)
+            return (long)k;
+    return -1;
+}
+
+/* Collects the plain columns derive k reads, through other derives, that
+ * are not inputs themselves. */
+static int collect_extra(const job *j, const design *d, size_t k,
+                         est_layout *L)
+{
+    const formula *f = d->formulas[k];
+    for (size_t i = 0; i < formula_nrefs(f); i++) {
+        const char *name = formula_ref(f, i);
+        long dk = derive_named(j, name);
+        if (dk >= 0 && (size_t)dk < k) {
+            if (input_named(d, name) < 0 && collect_extra(j, d, (size_t)dk, L))
+                return -1;
+            continue;
+        }
+        if (input_named(d, name) >= 0)
+            continue;
+        int seen = 0;
+        for (size_t e = 0; e < L->n_extra; e++)
+            seen |= strcmp(L->extra[e], name) == 0;
+        if (seen)
+            continue;
+        const char **x = realloc(L->extra, (L->n_extra + 1) * sizeof *x);
+        if (x == NULL)
+            return -1;
+        L->extra = x;
+        L->extra[L->n_extra++] = name;
+    }
+    return 0;
+}
+
+/* The spreadsheet text of derive k in sheet row r (0-based), without the
+ * leading '=': references to inputs and extra columns become cells of the
+ * row, references to other derives their own text in parentheses.
+ * Returns a malloc'd string or NULL on no memory. */
+static char *derive_text(const job *j, const design *d, const est_layout *L,
+                         size_t k, uint32_t r)
+{
+    const formula *f = d->formulas[k];
+    size_t nr = formula_nrefs(f);
+    char **cells = calloc(nr ? nr : 1, sizeof *cells);
+    char *out = NULL;
+    if (cells == NULL)
+        return NULL;
+    for (size_t i = 0; i < nr; i++) {
+        const char *name = formula_ref(f, i);
+        long in = input_named(d, name), dk = derive_named(j, name);
+        char cell[32];
+        if (in >= 0) {
+            writer_cell_name(r, (uint16_t)(L->c_input0 + in), cell,
+                             sizeof cell);
+            cells[i] = strdup(cell);
+        } else if (dk >= 0) {
+            char *sub = derive_text(j, d, L, (size_t)dk, r);
+            if (sub) {
+                size_t len = strlen(sub) + 3;
+                if ((cells[i] = malloc(len)) != NULL)
+                    snprintf(cells[i], len, "(%s)", sub);
+                free(sub);
+            }
+        } else {
+            for (size_t e = 0; e < L->n_extra; e++)
+                if (strcmp(L->extra[e], name) == 0)
+                    writer_cell_name(r, (uint16_t)(L->c_extra0 + e), cell,
+                                     sizeof cell);
+            cells[i] = strdup(cell);
+        }
+        if (cells[i] == NULL)
+            goto done;
+    }
+    char *text = formula_spreadsheet(f, (const char *const *)cells);
+    if (text) {
+        out = strdup(text[0] == '=' ? text + 1 : text);
+        free(text);
+    }
+done:
+    for (size_t i = 0; i < nr; i++)
+        free(cells[i]);
+    free(cells);
+    return out;
+}
 
 /* The estimate formula for row r (0-based sheet row), terms in order. */
 static int estimate_formula(strbuf *b, const design *d, const linear_model *m,
@@ -165,6 +270,7 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     if (s == NULL)
         return err->status;
     est_layout L;
+    strbuf fb = { NULL, 0, 0 };
     uint16_t c = 0;
     L.c_source = c++;
     L.c_row = c++;
@@ -177,11 +283,32 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     L.c_high = c++;
     L.c_status = c++;
     L.c_input0 = c;
-    L.ncols = c + d->n_inputs;
-
+    L.c_extra0 = (uint16_t)(c + d->n_inputs);
+    L.n_extra = 0;
+    L.extra = NULL;
+    L.extra_col[0] = L.extra_col[1] = NULL;
+    for (size_t i = 0; i < d->n_inputs; i++)
+        if (d->inputs[i].derive >= 0 && !d->inputs[i].is_category
+            && collect_extra(j, d, (size_t)d->inputs[i].derive, &L)) {
+            free(L.extra);
+            return error_nomem(err, NULL);
+        }
+    L.ncols = L.c_extra0 + L.n_extra;
+    L.extra_col[0] = malloc((L.n_extra + 1) * sizeof(long));
+    L.extra_col[1] = malloc((L.n_extra + 1) * sizeof(long));
     const char **names = malloc(L.ncols * sizeof *names);
-    if (names == NULL)
+    if (names == NULL || L.extra_col[0] == NULL || L.extra_col[1] == NULL) {
+        free(names);
+        free(L.extra);
+        free(L.extra_col[0]);
+        free(L.extra_col[1]);
         return error_nomem(err, NULL);
+    }
+    for (size_t e = 0; e < L.n_extra; e++) {
+        names[L.c_extra0 + e] = L.extra[e];
+        L.extra_col[0][e] = table_find_column(data, L.extra[e]);
+        L.extra_col[1][e] = score ? table_find_column(score, L.extra[e]) : -1;
+    }
     names[L.c_source] = "source";
     names[L.c_row] = "row";
     if (L.has_id)
@@ -211,13 +338,16 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         writer_column(s, (uint16_t)(L.c_input0 + i), wdt < 10 ? 10 : wdt,
                       WFMT_NONE);
     }
-    if ((st = writer_header(s, names, L.ncols, (uint32_t)d->n_rows))) {
-        free(names);
-        return writer_status(w, err);
+    for (size_t e = 0; e < L.n_extra; e++) {
+        double wdt = strlen(L.extra[e]) + 3.0;
+        writer_column(s, (uint16_t)(L.c_extra0 + e), wdt < 10 ? 10 : wdt,
+                      WFMT_NONE);
     }
+    st = writer_header(s, names, L.ncols, (uint32_t)d->n_rows);
     free(names);
+    if (st)
+        goto out;
 
-    strbuf fb = { NULL, 0, 0 };
     char status[600], cell[32], cell2[32];
     for (size_t o = 0; o < d->n_rows; o++) {
         const design_row *row = &d->rows[o];
@@ -246,7 +376,7 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
             int blank = 0, b2 = 0;
             if (estimate_formula(&fb, d, m, &L, r)) {
                 st = error_nomem(err, NULL);
-                break;
+                goto out;
             }
             if (isfinite(est))
                 writer_formula(s, r, L.c_est, fb.s, est, WFMT_FIXED2);
@@ -275,13 +405,34 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
             if (in->is_category) {
                 if (in->level[o])
                     writer_text(s, r, ci, in->level[o], WFMT_NONE);
+            } else if (isfinite((double)in->value[o]) && in->derive >= 0) {
+                /* a derived input is live: edit what it reads, and it and
+                 * the estimate follow */
+                char *text = derive_text(j, d, &L, (size_t)in->derive, r);
+                if (text == NULL) {
+                    st = error_nomem(err, NULL);
+                    goto out;
+                }
+                writer_formula(s, r, ci, text, (double)in->value[o],
+                               WFMT_NONE);
+                free(text);
             } else if (isfinite((double)in->value[o])) {
                 writer_number(s, r, ci, (double)in->value[o], WFMT_NONE,
                               NULL);
             }
         }
+        for (size_t e = 0; e < L.n_extra; e++) {
+            long ec = L.extra_col[row->source == SOURCE_DATA ? 0 : 1][e];
+            if (ec >= 0)
+                write_cell(s, r, (uint16_t)(L.c_extra0 + e), t, row->row,
+                           (size_t)ec);
+        }
     }
+out:
     free(fb.s);
+    free(L.extra);
+    free(L.extra_col[0]);
+    free(L.extra_col[1]);
     (void)warn;
     if (st)
         return st;

@@ -94,9 +94,12 @@ REFERENCE = "Oakmere"           # the most frequent district
 LEVELS = ["Riverside", "Hollow Creek"]
 TERMS = ["(intercept)", "sqft_k", "bathrooms", "age"] + \
         ["district: " + lv for lv in LEVELS]
+# Contract section 3 order, then (docs/workbook.md) the plain columns that
+# derived inputs read, so the derived cells can be live formulas: sqft_k is
+# derived from sqft.
 EST_COLUMNS = ["source", "row", "parcel", "price", "estimate", "residual",
                "low", "high", "status", "sqft_k", "bathrooms", "age",
-               "district"]
+               "district", "sqft"]
 COEF_COLUMNS = ["term", "estimate", "std error", "t", "p value", "low", "high"]
 SUMMARY_LABELS = ["model", "target", "rows read", "rows fitted",
                   "rows skipped", "rows estimated", "terms", "r squared",
