@@ -29,7 +29,7 @@ endif
 # Debian packages: the build needs the -dev ones, the tests the rest.
 DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
              libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev nettle-dev
-DEB_TEST  := libcmocka-dev python3 python3-openpyxl libreoffice-calc-nogui
+DEB_TEST  := libcmocka-dev python3 python3-openpyxl libreoffice-calc-nogui time
 
 IO_SRC     := $(sort $(wildcard io/*.c))
 ENGINE_SRC := $(sort $(filter-out engine/main.c,$(wildcard engine/*.c)))
