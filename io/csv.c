@@ -80,33 +80,6 @@ static int is_space(char c)
     return c == ' ' || c == '\t';
 }
 
-static const char *trim_span(const char *s, size_t *len)
-{
-    size_t n = *len;
-    while (n > 0 && is_space(*s)) {
-        s++;
-        n--;
-    }
-    while (n > 0 && is_space(s[n - 1]))
-        n--;
-    *len = n;
-    return s;
-}
-
-static int ascii_lower(int c)
-{
-    return (c >= 'A' && c <= 'Z') ? c - 'A' + 'a' : c;
-}
-
-static int equal_nocase(const char *s, size_t n, const char *word)
-{
-    size_t i;
-    for (i = 0; i < n && word[i] != '\0'; i++)
-        if (ascii_lower((unsigned char)s[i]) != word[i])
-            return 0;
-    return i == n && word[i] == '\0';
-}
-
 static int is_digit(char c)
 {
     return c >= '0' && c <= '9';
@@ -174,7 +147,7 @@ static int convert_c_locale(const char *s, size_t len, double *v)
 
 int csv_parse_number(const char *s, size_t len, double *v)
 {
-    s = trim_span(s, &len);
+    s = table_trim_span(s, &len);
     if (len == 0 || len > CSV_NUMBER_MAX)
         return 0;
     size_t i = 0;
@@ -290,7 +263,7 @@ static rf_status set_cell(reader *r, size_t col, const field *f)
 {
     const char *raw = r->rec + f->off;
     size_t len = f->len;
-    const char *s = trim_span(raw, &len);
+    const char *s = table_trim_span(raw, &len);
     double v;
     if (len == 0)
         return RF_OK;  /* the row starts blank */
@@ -298,7 +271,7 @@ static rf_status set_cell(reader *r, size_t col, const field *f)
         return table_set_number(r->t, col, v, r->err);
     if (parse_iso_date(s, len, &v))
         return table_set_date(r->t, col, v, r->err);
-    if (equal_nocase(s, len, "true") || equal_nocase(s, len, "false"))
+    if (table_word_is(s, len, "true") || table_word_is(s, len, "false"))
         return table_set_bool(r->t, col, s[0] == 't' || s[0] == 'T',
                               r->err);
     if (f->quoted)
@@ -309,7 +282,7 @@ static rf_status set_cell(reader *r, size_t col, const field *f)
 static int field_is_empty(const reader *r, const field *f)
 {
     size_t len = f->len;
-    trim_span(r->rec + f->off, &len);
+    table_trim_span(r->rec + f->off, &len);
     return len == 0;
 }
 

@@ -66,8 +66,7 @@ static int is_space(char c)
     return c == ' ' || c == '\t';
 }
 
-/* The span of s[0..len) without leading and trailing spaces and tabs. */
-static const char *trim_span(const char *s, size_t *len)
+const char *table_trim_span(const char *s, size_t *len)
 {
     size_t n = *len;
     while (n > 0 && is_space(*s)) {
@@ -86,7 +85,7 @@ static int ascii_lower(int c)
 }
 
 /* ASCII-only, so the locale cannot change which words count. */
-static int equal_nocase(const char *s, size_t n, const char *word)
+int table_word_is(const char *s, size_t n, const char *word)
 {
     size_t i;
     for (i = 0; i < n && word[i] != '\0'; i++)
@@ -98,9 +97,9 @@ static int equal_nocase(const char *s, size_t n, const char *word)
 static int is_yesno_text(const char *s)
 {
     size_t n = strlen(s);
-    s = trim_span(s, &n);
-    return equal_nocase(s, n, "yes") || equal_nocase(s, n, "no") ||
-           equal_nocase(s, n, "true") || equal_nocase(s, n, "false");
+    s = table_trim_span(s, &n);
+    return table_word_is(s, n, "yes") || table_word_is(s, n, "no") ||
+           table_word_is(s, n, "true") || table_word_is(s, n, "false");
 }
 
 table *table_create(const char *file, const char *sheet)
@@ -201,7 +200,7 @@ rf_status table_add_column(table *t, const char *name, uint32_t src_col,
                          "column '%s' added after the first row", name);
 
     size_t len = strlen(name);
-    const char *s = trim_span(name, &len);
+    const char *s = table_trim_span(name, &len);
     for (size_t c = 0; c < t->ncols; c++) {
         const column *o = &t->cols[c];
         if (strlen(o->name) == len && memcmp(o->name, s, len) == 0) {
@@ -401,7 +400,7 @@ const char *table_column_name(const table *t, size_t col)
 long table_find_column(const table *t, const char *name)
 {
     size_t len = strlen(name);
-    const char *s = trim_span(name, &len);
+    const char *s = table_trim_span(name, &len);
     for (size_t c = 0; c < t->ncols; c++)
         if (strlen(t->cols[c].name) == len &&
             memcmp(t->cols[c].name, s, len) == 0)

@@ -100,6 +100,12 @@ char *table_where(const table *t, size_t row, size_t col, char *buf,
 char *table_cell_show(const table *t, size_t row, size_t col, char *buf,
                       size_t n);
 
+/* Text helpers shared by the readers. table_trim_span returns the span of
+ * s[0..*len) without leading and trailing spaces and tabs (and sets *len);
+ * table_word_is compares s[0..n) with a lowercase ASCII word ignoring case. */
+const char *table_trim_span(const char *s, size_t *len);
+int table_word_is(const char *s, size_t n, const char *word);
+
 /* Column letters for a 0-based column index: 0 -> "A", 27 -> "AB". */
 char *table_column_letters(uint32_t col, char *buf, size_t n);
 
