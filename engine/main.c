@@ -123,7 +123,7 @@ int main(int argc, char **argv)
         run_result res;
         rf_status st = run_job(jobs[k], &opt, &warn, &res, &err);
         for (size_t i = 0; i < warn.n; i++)
-            fprintf(stderr, "rowfit: warning: %s\n", warn.items[i]);
+            fprintf(stderr, "rowfit: %s\n", warn.items[i]);
         if (warn.dropped)
             fprintf(stderr, "rowfit: warning: and %zu more warnings\n",
                     warn.dropped);

@@ -60,7 +60,9 @@ rf_status error_warn(rf_warnings *w, const char *where, const char *fmt, ...)
     char msg[ERROR_WHERE_MAX + ERROR_MESSAGE_MAX];
     int k = 0;
     if (where && *where)
-        k = snprintf(msg, sizeof msg, "%s: ", where);
+        k = snprintf(msg, sizeof msg, "%s: warning: ", where);
+    else
+        k = snprintf(msg, sizeof msg, "warning: ");
     va_list ap;
     va_start(ap, fmt);
     vsnprintf(msg + k, sizeof msg - (size_t)k, fmt, ap);

@@ -42,7 +42,8 @@ int error_exit_code(rf_status s);
 /* A short name for s ("ok", "bad input", ...), for tests and logs. */
 const char *error_status_str(rf_status s);
 
-/* Warnings: each item is "WHERE: WHAT" (or "WHAT" when where is empty).
+/* Warnings: each item is "WHERE: warning: WHAT" (or "warning: WHAT" when
+ * where is empty), the way main() prints it after "rowfit: ".
  * At most ERROR_WARNINGS_MAX are kept; after that only `dropped` counts up,
  * so a file with a million odd rows cannot flood memory or the Job sheet. */
 #define ERROR_WARNINGS_MAX 200

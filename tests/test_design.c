@@ -805,7 +805,7 @@ static void test_design_score_without_id_column_warns(void **state)
     assert_int_equal(d->id_col_score, -1);
     assert_int_equal(d->id_col_data, 0);
     assert_int_equal(w.n, 1);
-    assert_true(has_warning(&w, "s.csv: has no column 'parcel'"));
+    assert_true(has_warning(&w, "s.csv: warning: has no column 'parcel'"));
     assert_int_equal(d->rows[6].status, ROW_ESTIMATED);
     assert_int_equal(d->rows[7].status, ROW_ESTIMATED);
     error_warnings_clear(&w);

@@ -48,9 +48,9 @@ static void test_error_warnings_are_capped_and_counted(void **state)
     (void)state;
     rf_warnings w = { 0 };
     assert_int_equal(error_warn(&w, "sales.csv:3", "odd %d", 1), RF_OK);
-    assert_string_equal(w.items[0], "sales.csv:3: odd 1");
+    assert_string_equal(w.items[0], "sales.csv:3: warning: odd 1");
     assert_int_equal(error_warn(&w, "", "no place"), RF_OK);
-    assert_string_equal(w.items[1], "no place");
+    assert_string_equal(w.items[1], "warning: no place");
     for (int i = 0; i < ERROR_WARNINGS_MAX + 10; i++)
         assert_int_equal(error_warn(&w, NULL, "w%d", i), RF_OK);
     assert_int_equal(w.n, ERROR_WARNINGS_MAX);
