@@ -37,6 +37,7 @@
 /* Condition number past which the covariance from R alone may lose more
  * than about 4 of its 16 digits, so its columns are refined too. */
 #define COV_REFINE_COND 1e4
+#define EXACT_FIT_ULPS 16  /* residual size, in ulps of y, that counts as 0 */
 
 /* Workspace of one factorization of the kept columns. */
 typedef struct qrfac {
@@ -167,7 +168,11 @@ static void qrfac_correct(qrfac *q)
  * Wampler5: 9.4 correct digits with extended sums, 15 with quadruple. */
 #define QUAD_WORK_MAX 2000000  /* n * rank up to which sums are quadruple */
 
+#ifdef __SIZEOF_FLOAT128__
 __extension__ typedef __float128 quad;
+#else
+typedef long double quad;  /* quadruple already where there is no __float128 */
+#endif
 
 static void residuals_quad(qrfac *q, const long double *X, size_t p,
                            const double *scale, const long double *b,
@@ -523,8 +528,7 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
         nk = nk2;
     }
     for (size_t j = 0; j < p; j++)
-        if (m->drop[j] == LINEAR_DROP_COLLINEAR
-            || (m->drop[j] == LINEAR_DROP_CONSTANT && 0))
+        if (m->drop[j] == LINEAR_DROP_COLLINEAR)
             explain_collinear(q, X, p, m->scale, j,
                               m->with + j * LINEAR_WITH_MAX, &m->n_with[j],
                               work_n, coef);
@@ -557,9 +561,16 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
         sae += fabsl(e);
         sy += y[i];
     }
-    long double tss = 0, ybar = intercept ? sy / n : 0;
-    for (size_t i = 0; i < n; i++)
+    long double tss = 0, yy = 0, ybar = intercept ? sy / n : 0;
+    for (size_t i = 0; i < n; i++) {
         tss += (y[i] - ybar) * (y[i] - ybar);
+        yy += y[i] * y[i];
+    }
+    /* An exact fit leaves residuals at the rounding level of y (1e-46 on a
+     * line through its points), and a t of 1e46 from them is noise: below
+     * (EXACT_FIT_ULPS ulps of y)^2 the fit is exact, and says so. */
+    if (rss <= yy * (EXACT_FIT_ULPS * DBL_EPSILON) * (EXACT_FIT_ULPS * DBL_EPSILON))
+        rss = sae = 0;
 
     /* Covariance of the scaled coefficients, (A'A)^-1 = R^-1 R^-T. Its
      * relative error grows with the condition number, so past
@@ -596,7 +607,7 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
         long double msr = (tss - rss) / dfm, mse = rss / dfr;
         m->fstat = mse > 0 ? (double)(msr / mse) : INFINITY;
         m->fpvalue = isfinite(m->fstat) ? gsl_cdf_fdist_Q(m->fstat, dfm, dfr)
-                                        : 0.0;
+                                        : NAN;
     } else {
         m->fstat = m->fpvalue = NAN;
     }
@@ -612,8 +623,8 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
     double s2 = (double)(rss / dfr);
     for (size_t k = 0; k < rank; k++) {
         size_t j = q->col[k];
-        double v = cov[k * rank + k] * m->scale[j] * m->scale[j];
-        m->se[j] = sqrt(s2 * v);
+        /* scale outside the root: squared, 2^-997 would underflow */
+        m->se[j] = sqrt(s2 * cov[k * rank + k]) * m->scale[j];
         if (m->se[j] > 0) {
             m->t[j] = m->beta[j] / m->se[j];
             m->pvalue[j] = 2 * gsl_cdf_tdist_Q(fabs(m->t[j]), dfr);
@@ -646,6 +657,16 @@ fail:
     free(zres);
     linear_free(m);
     return st;
+}
+
+int linear_accurate_digits(const linear_model *m)
+{
+    /* cond * 2^-63: the extended unit roundoff of the refinement */
+    double lost = m->cond * LDBL_EPSILON;
+    if (!(lost > 0) || !isfinite(lost))
+        return isfinite(m->cond) ? 15 : 0;
+    double d = floor(-log10(lost));
+    return d > 15 ? 15 : d < 0 ? 0 : (int)d;
 }
 
 void linear_predict(const linear_model *m, const long double *x, double *est,

@@ -32,10 +32,12 @@ typedef enum linear_drop {
 /* Relative tolerance of the rank decision: after each column is scaled to
  * unit length (by a power of two, so exactly), a term is dropped when what
  * it adds beyond the earlier terms, |R_kk|, is below LINEAR_RANK_TOL times
- * the largest |R_11|. 1e-11 keeps the hardest NIST set (Filip, degree 10,
- * scaled condition about 1e9) while a column equal to another up to
- * rounding is still caught. */
-#define LINEAR_RANK_TOL 1e-11
+ * |R_11|. A column that is a combination of others up to rounding (2*x, or
+ * x1 + x2 read from a file) adds about 1e-16 and is dropped; designs well
+ * past NIST's hardest (Filip, scaled condition 6.5e9; Filip's x shifted or
+ * of degree 13, condition up to 7e12) are kept and solved to 8+ digits
+ * (measured against exact rational arithmetic), with a warning. */
+#define LINEAR_RANK_TOL 1e-13
 
 typedef struct linear_model {
     size_t n, p, rank;
@@ -80,6 +82,11 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
                      int intercept, double level, linear_model **out,
                      rf_error *err);
 void linear_free(linear_model *m);  /* accepts NULL */
+
+/* Correct significant digits to expect in the coefficients, from the
+ * condition number and extended-precision refinement: floor(-log10(cond *
+ * 2^-63)), between 0 and 15. */
+int linear_accurate_digits(const linear_model *m);
 
 /* The estimate for a row x (p values, same columns as X) and its prediction
  * interval at the model's level. low/high are NaN when there are no

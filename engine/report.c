@@ -23,6 +23,9 @@
     "professional standards and licensed appraisal practice before relying " \
     "on any figure here."
 
+/* Points a chart plots at most (the first rows of Estimates). */
+#define CHART_POINTS_MAX 20000
+
 /* Grows a string buffer; returns -1 on no memory. */
 typedef struct strbuf {
     char *s;
@@ -511,7 +514,7 @@ static rf_status write_coefficients(writer *w, const design *d,
                              "compared with the reference level '%s'",
                              in->levels[in->reference]);
             }
-            if (m->df_resid > 0 && !(m->se[k] > 0))
+            if (m->rss == 0)
                 snprintf(note, sizeof note, "exact fit: no residual "
                                             "variation, so no t or p value");
         }
@@ -581,7 +584,8 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
     srow(s, &r, "mae", m->mae, WFMT_SIG, "mean absolute residual");
     srow(s, &r, "f statistic", m->fstat, WFMT_SIG,
          isinf(m->fstat) ? "infinite: the fit is exact" : NULL);
-    srow(s, &r, "f p value", m->fpvalue, WFMT_PVALUE, NULL);
+    srow(s, &r, "f p value", m->fpvalue, WFMT_PVALUE,
+         isinf(m->fstat) ? "not defined: the fit is exact" : NULL);
     srow(s, &r, "residual df", m->df_resid, WFMT_INTEGER, NULL);
     srow(s, &r, "aic", m->aic, WFMT_SIG,
          isfinite(m->aic) ? "-2 log likelihood + 2 (terms estimated + 1)"
@@ -595,9 +599,7 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
              "of the inputs after scaling each to unit length; a term is "
              "dropped below a relative size of %.0e", m->rank_tol);
     srow(s, &r, "condition number", m->cond, WFMT_SCI, note);
-    int digits = (int)floor(-log10(m->cond * 1.0842021724855044e-19));
-    if (digits > 15 || !isfinite(m->cond))
-        digits = 15;
+    int digits = linear_accurate_digits(m);
     snprintf(note, sizeof note, "%s", m->refine_converged
              ? "correct significant digits to expect in the estimates, from "
                "the condition number and extended-precision refinement"
@@ -606,6 +608,27 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
     srow(s, &r, "accurate digits", digits, WFMT_INTEGER, note);
     r++;
     trow(s, &r, "caution", "an estimate is not an appraisal", CAUTION_PRICE);
+
+    /* Two charts over the Estimates columns: target against estimate (a
+     * good fit lies on the diagonal) and residual against estimate (a good
+     * fit shows no pattern). Capped, because a spreadsheet program slows
+     * to a crawl drawing a million points. */
+    int has_id = j->id.name != NULL;
+    uint16_t c_target = (uint16_t)(has_id ? 3 : 2);
+    size_t last = d->n_rows < CHART_POINTS_MAX ? d->n_rows : CHART_POINTS_MAX;
+    char ct[8], ce[8], cr[8], xr[64], yr[64], rr[64], title[96];
+    col_name(c_target, ct, sizeof ct);
+    col_name((uint16_t)(c_target + 1), ce, sizeof ce);
+    col_name((uint16_t)(c_target + 2), cr, sizeof cr);
+    snprintf(xr, sizeof xr, "=Estimates!$%s$2:$%s$%zu", ce, ce, last + 1);
+    snprintf(yr, sizeof yr, "=Estimates!$%s$2:$%s$%zu", ct, ct, last + 1);
+    snprintf(rr, sizeof rr, "=Estimates!$%s$2:$%s$%zu", cr, cr, last + 1);
+    const char *cap = last < d->n_rows ? " (first rows)" : "";
+    snprintf(title, sizeof title, "%s against estimate%s", j->target.name,
+             cap);
+    writer_scatter(s, 1, 4, title, "estimate", xr, j->target.name, yr);
+    snprintf(title, sizeof title, "residual against estimate%s", cap);
+    writer_scatter(s, 17, 4, title, "estimate", xr, "residual", rr);
     return writer_status(w, err);
 }
 

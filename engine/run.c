@@ -129,7 +129,7 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
                             "%.2g after scaling): expect about %d correct "
                             "digits in the coefficients; centring inputs or "
                             "fewer polynomial terms helps", m->cond,
-                            (int)fmin(15, floor(-log10(m->cond * 1.0842021724855044e-19))))))
+                            linear_accurate_digits(m))))
         goto done;
 
     report_facts facts;

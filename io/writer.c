@@ -852,6 +852,36 @@ rf_status writer_blank(writer_sheet *s, uint32_t row, uint16_t col,
     return e == LXW_NO_ERROR ? RF_OK : cell_error(s, row, col, e);
 }
 
+rf_status writer_scatter(writer_sheet *s, uint32_t row, uint16_t col,
+                         const char *title, const char *x_name,
+                         const char *x_range, const char *y_name,
+                         const char *y_range)
+{
+    /* A chart floats over the sheet: it is not a cell, so it may go
+     * beside rows already written. */
+    if (s->w->first.status != RF_OK)
+        return s->w->first.status;
+    if (row >= LXW_ROW_MAX || col >= LXW_COL_MAX)
+        return fail_cell(s, row, col, RF_EINPUT, "%s",
+                         "a chart placed outside the sheet");
+    writer *w = s->w;
+    locale_t old = uselocale(w->cloc);
+    lxw_error e = LXW_ERROR_MEMORY_MALLOC_FAILED;
+    lxw_chart *ch = workbook_add_chart(w->wb, LXW_CHART_SCATTER);
+    lxw_chart_series *se = ch ? chart_add_series(ch, x_range, y_range) : NULL;
+    if (se) {
+        chart_series_set_marker_type(se, LXW_CHART_MARKER_CIRCLE);
+        chart_series_set_marker_size(se, 3);
+        chart_title_set_name(ch, title);
+        chart_axis_set_name(ch->x_axis, x_name);
+        chart_axis_set_name(ch->y_axis, y_name);
+        chart_legend_set_position(ch, LXW_CHART_LEGEND_NONE);
+        e = worksheet_insert_chart(s->ws, row, col, ch);
+    }
+    uselocale(old);
+    return e == LXW_NO_ERROR ? RF_OK : cell_error(s, row, col, e);
+}
+
 rf_status writer_formula(writer_sheet *s, uint32_t row, uint16_t col,
                          const char *formula, double cached,
                          writer_format fmt)

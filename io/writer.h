@@ -90,6 +90,14 @@ rf_status writer_formula(writer_sheet *s, uint32_t row, uint16_t col,
                          const char *formula, double cached,
                          writer_format fmt);
 
+/* A scatter chart with its top-left corner at (row, col) of s, plotting
+ * the cells of y_range against those of x_range (ranges like
+ * "=Estimates!$E$2:$E$101"), with a title and axis names. */
+rf_status writer_scatter(writer_sheet *s, uint32_t row, uint16_t col,
+                         const char *title, const char *x_name,
+                         const char *x_range, const char *y_name,
+                         const char *y_range);
+
 /* Closes the workbook into a temporary file beside path and renames it over
  * path. On any failure the temporary file is removed and a previous file at
  * path is untouched. Frees w in every case. */

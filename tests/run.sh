@@ -24,12 +24,13 @@ for t in "$@"; do
     "$t" > "$out/$name.log" 2>&1; rc=$?
     count "$name" "$out/$name.log" $rc
 done
-for s in tests/nist/nist.py tests/e2e/test_e2e.py tests/e2e/demo_truth.py tests/e2e/test_recalc.py; do
+for s in tests/nist/nist.py tests/nist/harder.py tests/e2e/test_e2e.py tests/e2e/demo_truth.py tests/e2e/test_recalc.py; do
     [ -f "$s" ] || continue
     name=$(basename "$s" .py)
     "$PYTHON" "$s" > "$out/$name.log" 2>&1; rc=$?
     count "$name" "$out/$name.log" $rc
     [ "$name" = nist ] && grep -E "^NIST .* (set|minimum)" "$out/$name.log"
+    [ "$name" = harder ] && grep -E "harder Filip" "$out/$name.log"
 done
 if [ -n "$bad_suites" ]; then
     echo "failing suites:$bad_suites (logs in $out/)"

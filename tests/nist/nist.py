@@ -10,8 +10,8 @@ python3-openpyxl, used here only as an independent reader of the .xlsx) and
 prints the log relative error (LRE, defined in README.md) of every
 coefficient, standard error, the residual standard deviation and R-squared.
 
-Requirement (README.md): LRE >= 9 on every value of every set, >= 8 for
-Filip's standard errors. Each set is run a second time with CRLF line endings
+Requirement: LRE >= 9 on every value of every set (README.md allows 8 for
+Filip's standard errors; we hold 9). Each set is run a second time with CRLF line endings
 in its CSV (README.md suggests testing them); the results must be identical.
 
 Usage: ROWFIT=./rowfit python3 tests/nist/nist.py [SET...]
@@ -52,7 +52,7 @@ DEGREE = {"Pontius": 2, "Filip": 10, "Wampler1": 5, "Wampler2": 5,
 NO_INTERCEPT = {"NoInt1", "NoInt2"}
 LRE_CAP = 15.0   # the certified values carry 15 significant digits
 REQUIRED = 9.0   # README.md
-REQUIRED_FILIP_SE = 8.0
+REQUIRED_FILIP_SE = 9.0  # the README allows 8; issue 2 asks 9 of every value, and we hold it
 
 # A number as NIST writes it: 1.5, .11019, 760., -0.3E-02, Infinity.
 NUM = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?|[-+]?Infinity"
