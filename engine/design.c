@@ -231,6 +231,22 @@ static int source_value(ctx *c, size_t r, source s, fvalue *out,
     return 0;
 }
 
+/* A reason that names a cell ("year_built is 'n/a', not a number") is
+ * clear as it is; one that does not ("division by zero") gets the derive's
+ * name in front, so the row's status says which computation failed. */
+static void name_the_derive(const formula *f, const char *name, char *why)
+{
+    for (size_t i = 0; i < formula_nrefs(f); i++) {
+        size_t len = strlen(formula_ref(f, i));
+        if (strncmp(why, formula_ref(f, i), len) == 0
+            && strncmp(why + len, " is ", 4) == 0)
+            return;
+    }
+    char tmp[REASON_MAX];
+    snprintf(tmp, sizeof tmp, "%s: %s", name, why);
+    memcpy(why, tmp, REASON_MAX);
+}
+
 static int derive_value(ctx *c, size_t r, size_t k, fvalue *out)
 {
     if (c->dstate[k] == 1) {
@@ -268,6 +284,7 @@ static int derive_value(ctx *c, size_t r, size_t k, fvalue *out)
             c->dval[k] = *out;
         } else {
             rc = -1;
+            name_the_derive(f, c->j->derives[k].name, c->dwhy[k]);
         }
     }
     if (v != vals)

@@ -1286,6 +1286,10 @@ rf_status job_read(const char *path, job **out, rf_error *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
+    /* A job file that is not there is the user's mistake (exit 1); one
+     * that is there but cannot be read is the system's (exit 3). */
+    if (f == NULL && errno == ENOENT)
+        return error_set(err, RF_EINPUT, path, "no such job file");
     if (f == NULL)
         return error_set(err, RF_ESYSTEM, path, "cannot open the job file: "
                          "%s", strerror(errno));
@@ -1300,6 +1304,9 @@ rf_status job_read(const char *path, job **out, rf_error *err)
     fclose(f);
     if (failed) {
         free(text);
+        if (saved == EISDIR)
+            return error_set(err, RF_EINPUT, path,
+                             "is a folder, not a job file");
         return error_set(err, RF_ESYSTEM, path, "cannot read the job file: "
                          "%s", strerror(saved));
     }

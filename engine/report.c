@@ -11,6 +11,7 @@
 
 #include "formula.h"
 
+#include <assert.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -22,6 +23,15 @@
     "right and that new rows resemble the fitted ones. Follow local law, " \
     "professional standards and licensed appraisal practice before relying " \
     "on any figure here."
+
+/* Longest formula a spreadsheet program accepts (8,192 characters, from
+ * memory); a longer estimate formula (a category with hundreds of levels)
+ * is written as its value instead. */
+#define FORMULA_CHARS_MAX 8000
+
+/* Rows of measures on the Summary sheet (the caution below them is not
+ * filtered). */
+#define SUMMARY_MEASURES 20
 
 /* Points a chart plots at most (the first rows of Estimates). */
 #define CHART_POINTS_MAX 20000
@@ -104,10 +114,10 @@ static int sb_quoted(strbuf *b, const char *s)
 {
     if (sb_add(b, "\""))
         return -1;
-    for (; *s; s++)
-        if (sb_add(b, *s == '"' ? "\"\"" : "%c", *s))
+    for (const char *q; (q = strchr(s, '"')) != NULL; s = q + 1)
+        if (sb_add(b, "%.*s\"\"", (int)(q - s), s))
             return -1;
-    return sb_add(b, "\"");
+    return sb_add(b, "%s\"", s);
 }
 
 /* Layout of the Estimates sheet. */
@@ -186,7 +196,7 @@ static char *derive_text(const job *j, const design *d, const est_layout *L,
     for (size_t i = 0; i < nr; i++) {
         const char *name = formula_ref(f, i);
         long in = input_named(d, name), dk = derive_named(j, name);
-        char cell[32];
+        char cell[32] = "";
         if (in >= 0) {
             writer_cell_name(r, (uint16_t)(L->c_input0 + in), cell,
                              sizeof cell);
@@ -252,9 +262,11 @@ static int estimate_formula(strbuf *b, const design *d, const linear_model *m,
             if (!in->is_category) {
                 if (sb_add(b, "*%s", cell))
                     return -1;
-            } else if (sb_add(b, "*(%s=", cell)
+            } else if (sb_add(b, "*EXACT(%s,", cell)
                        || sb_quoted(b, design_term_level(in, k))
                        || sb_add(b, ")")) {
+                /* EXACT, not '=': spreadsheets compare text ignoring
+                 * case, and 'North' and 'north' are two levels here */
                 return -1;
             }
         }
@@ -381,10 +393,12 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
                 st = error_nomem(err, NULL);
                 goto out;
             }
-            if (isfinite(est))
-                writer_formula(s, r, L.c_est, fb.s, est, WFMT_FIXED2);
-            else
+            if (!isfinite(est))
                 blank = 1;
+            else if (fb.n <= FORMULA_CHARS_MAX)
+                writer_formula(s, r, L.c_est, fb.s, est, WFMT_FIXED2);
+            else   /* too long for spreadsheet programs to open */
+                writer_number(s, r, L.c_est, est, WFMT_FIXED2, NULL);
             if (row->status == ROW_FITTED) {
                 writer_cell_name(r, L.c_target, cell, sizeof cell);
                 writer_cell_name(r, L.c_est, cell2, sizeof cell2);
@@ -558,7 +572,7 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
     writer_column(s, 0, 24, WFMT_NONE);
     writer_column(s, 1, 20, WFMT_SIG);
     writer_column(s, 2, 80, WFMT_NONE);
-    writer_header(s, names, 3, 26);
+    writer_header(s, names, 3, SUMMARY_MEASURES);
     uint32_t r = 1;
     char note[300];
     size_t nread = table_rows(data) + (score ? table_rows(score) : 0);
@@ -606,6 +620,7 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
              : "refinement did not converge: the design is too "
                "ill-conditioned for full accuracy");
     srow(s, &r, "accurate digits", digits, WFMT_INTEGER, note);
+    assert(r - 1 == SUMMARY_MEASURES);  /* the autofilter covers them all */
     r++;
     trow(s, &r, "caution", "an estimate is not an appraisal", CAUTION_PRICE);
 
@@ -674,8 +689,8 @@ static rf_status write_job(writer *w, const job *j,
     writer_text(s, r, 1, "file", WFMT_BOLD);
     writer_text(s, r, 2, "bytes", WFMT_BOLD);
     writer_text(s, r++, 3, "sha-256", WFMT_BOLD);
-    static const char *const role[2] = { "data", "score" };
-    for (int k = 0; k < 2; k++) {
+    static const char *const role[3] = { "job", "data", "score" };
+    for (int k = 0; k < 3; k++) {
         if (facts->files[k] == NULL)
             continue;
         writer_text(s, r, 0, role[k], WFMT_NONE);

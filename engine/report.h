@@ -20,8 +20,8 @@
 typedef struct report_facts {
     const char *version;
     const char *started;         /* local date and time, ISO 8601 */
-    const char *files[2];        /* data, score (NULL when absent) */
-    fileinfo info[2];
+    const char *files[3];        /* job, data, score (NULL when absent) */
+    fileinfo info[3];
     const rf_warnings *warnings;
 } report_facts;
 

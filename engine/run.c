@@ -23,6 +23,10 @@
 #define ROWFIT_VERSION "0.0.0"
 #endif
 
+/* Rows a sheet holds below its header row (ECMA-376 sheets have
+ * 1,048,576 rows). */
+#define SHEET_ROWS_MAX 1048575
+
 /* A condition number past which the Summary's accurate-digits estimate
  * falls below 10, worth a warning (common practice: 1e8). */
 #define COND_WARN 1e8
@@ -44,6 +48,13 @@ static rf_status read_table(const job *j, const job_table *jt,
                              role, jt->path, jt->resolved);
         return error_set(err, RF_ESYSTEM, where, "cannot open '%s': %s",
                          jt->path, strerror(errno));
+    }
+    if (S_ISDIR(sb.st_mode)) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file, jt->line);
+        return error_set(err, RF_EINPUT, where,
+                         "the %s path '%s' is a folder, not a file", role,
+                         jt->path);
     }
     if (jt->sheet) {
         char where[ERROR_WHERE_MAX];
@@ -107,6 +118,20 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
     res->rows_estimated = d->n_est;
     res->rows_skipped = d->rows_skipped;
     res->terms = d->p;
+    if (d->n_rows > SHEET_ROWS_MAX) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file, j->data.line);
+        st = error_set(err, RF_EINPUT, where,
+                       "%zu rows in all: the Estimates sheet can hold at most "
+                       "%d below its header", d->n_rows, SHEET_ROWS_MAX);
+        goto done;
+    }
+    const char *out = opt->output ? opt->output : j->output_resolved;
+    const char *inputs[3] = { j->data.resolved, path,
+                              j->score.path ? j->score.resolved : NULL };
+    size_t n_inputs = j->score.path ? 3 : 2;
+    if ((st = writer_check(out, opt->force, inputs, n_inputs, err)))
+        goto done;
     if (opt->check_only)
         goto done;
 
@@ -136,21 +161,18 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
     memset(&facts, 0, sizeof facts);
     facts.version = ROWFIT_VERSION;
     facts.started = started;
-    facts.files[0] = j->data.path;
-    if ((st = fileinfo_get(j->data.resolved, j->data.path, &facts.info[0], err)))
-        goto done;
-    if (j->score.path) {
-        facts.files[1] = j->score.path;
-        if ((st = fileinfo_get(j->score.resolved, j->score.path,
-                               &facts.info[1], err)))
+    facts.files[0] = j->file;
+    facts.files[1] = j->data.path;
+    facts.files[2] = j->score.path;
+    const char *paths[3] = { path, j->data.resolved, j->score.resolved };
+    for (int k = 0; k < 3; k++)
+        if (facts.files[k]
+            && (st = fileinfo_get(paths[k], facts.files[k], &facts.info[k],
+                                  err)))
             goto done;
-    }
     facts.warnings = warn;
 
-    const char *out = opt->output ? opt->output : j->output_resolved;
-    const char *inputs[3] = { j->data.resolved, path,
-                              j->score.path ? j->score.resolved : NULL };
-    if ((st = writer_open(out, opt->force, inputs, j->score.path ? 3 : 2,
+    if ((st = writer_open(out, opt->force, inputs, n_inputs,
                           "rowfit " ROWFIT_VERSION, &w, err)))
         goto done;
     writer_set_warnings(w, warn);

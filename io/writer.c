@@ -566,11 +566,10 @@ static void writer_free(writer *w)
     free(w);
 }
 
-rf_status writer_open(const char *path, int force,
-                      const char *const *inputs, size_t n_inputs,
-                      const char *creator, writer **out, rf_error *err)
+rf_status writer_check(const char *path, int force,
+                       const char *const *inputs, size_t n_inputs,
+                       rf_error *err)
 {
-    *out = NULL;
     if (path == NULL || *path == '\0')
         return error_set(err, RF_EINPUT, "", "no output path given");
     size_t plen = strlen(path);
@@ -592,6 +591,32 @@ rf_status writer_open(const char *path, int force,
         return error_set(err, RF_EINPUT, path,
                          "%s exists and was not written by rowfit; use "
                          "--force to replace it", path);
+    /* A folder that is not there is the user's mistake, not the system's */
+    const char *slash = strrchr(path, '/');
+    if (slash != NULL && slash != path) {
+        char *dir = strndup(path, (size_t)(slash - path));
+        if (dir == NULL)
+            return error_nomem(err, path);
+        struct stat ds;
+        int ok = stat(dir, &ds) == 0 && S_ISDIR(ds.st_mode);
+        rf_status r = ok ? RF_OK
+                         : error_set(err, RF_EINPUT, path,
+                                     "the folder '%s' does not exist", dir);
+        free(dir);
+        if (r != RF_OK)
+            return r;
+    }
+    return RF_OK;
+}
+
+rf_status writer_open(const char *path, int force,
+                      const char *const *inputs, size_t n_inputs,
+                      const char *creator, writer **out, rf_error *err)
+{
+    *out = NULL;
+    rf_status chk = writer_check(path, force, inputs, n_inputs, err);
+    if (chk != RF_OK)
+        return chk;
 
     writer *w = calloc(1, sizeof *w);
     if (w == NULL)

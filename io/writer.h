@@ -35,6 +35,13 @@ typedef enum writer_format {
 typedef struct writer writer;
 typedef struct writer_sheet writer_sheet;
 
+/* The checks writer_open makes before it creates anything: path is not an
+ * input, not a folder, not a file rowfit did not write (unless force), and
+ * its folder exists. For `rowfit check`, which writes nothing. */
+rf_status writer_check(const char *path, int force,
+                       const char *const *inputs, size_t n_inputs,
+                       rf_error *err);
+
 /* Starts a workbook that will become path. Refuses (RF_EINPUT) when path is
  * one of the n_inputs input files, or when path exists and was not written
  * by rowfit and force is 0. creator is recorded in the document properties

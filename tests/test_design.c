@@ -559,6 +559,8 @@ static void test_design_derive_chain_as_input_and_target(void **state)
     assert_int_equal(d->rows[2].status, ROW_ESTIMATED);
     assert_int_equal(d->rows[3].status, ROW_SKIPPED);
     assert_non_null(strstr(d->rows[3].reason, "LN"));
+    /* a computation failure names the derive; a cell problem names the cell */
+    assert_true(strncmp(d->rows[3].reason, "lp: ", 4) == 0);
     assert_skipped(d, 4, "year_built is blank");
     assert_int_equal(d->n_fit, 4);
     assert_int_equal(d->n_est, 1);

@@ -857,26 +857,27 @@ static void test_job_read_reads_a_file(void **state)
     free(path);
 }
 
-static void test_job_read_missing_file_is_system_error(void **state)
+/* A job file that is not there is the user's mistake: exit 1, not 3. */
+static void test_job_read_missing_file_is_input_error(void **state)
 {
     (void)state;
     job *j = (job *)&j;
     rf_error e = {0};
     assert_int_equal(job_read("/nonexistent/rowfit/spring.job", &j, &e),
-                     RF_ESYSTEM);
+                     RF_EINPUT);
     assert_null(j);
     assert_string_equal(e.where, "/nonexistent/rowfit/spring.job");
-    assert_non_null(strstr(e.message, "cannot open the job file"));
+    assert_non_null(strstr(e.message, "no such job file"));
 }
 
-static void test_job_read_directory_is_system_error(void **state)
+static void test_job_read_directory_is_input_error(void **state)
 {
     (void)state;
     job *j = NULL;
     rf_error e = {0};
-    assert_int_equal(job_read("/tmp", &j, &e), RF_ESYSTEM);
+    assert_int_equal(job_read("/tmp", &j, &e), RF_EINPUT);
     assert_null(j);
-    assert_non_null(strstr(e.message, "cannot read the job file"));
+    assert_non_null(strstr(e.message, "is a folder, not a job file"));
 }
 
 static void test_job_read_rejects_nul_byte(void **state)
@@ -1005,8 +1006,8 @@ int main(void)
         cmocka_unit_test(test_job_rejects_directives_that_do_not_apply),
         cmocka_unit_test(test_job_rejects_features_not_available_yet),
         cmocka_unit_test(test_job_read_reads_a_file),
-        cmocka_unit_test(test_job_read_missing_file_is_system_error),
-        cmocka_unit_test(test_job_read_directory_is_system_error),
+        cmocka_unit_test(test_job_read_missing_file_is_input_error),
+        cmocka_unit_test(test_job_read_directory_is_input_error),
         cmocka_unit_test(test_job_read_rejects_nul_byte),
         cmocka_unit_test(test_job_read_rejects_oversized_file),
         cmocka_unit_test(test_job_bad_corpus_gives_expected_messages),

@@ -532,10 +532,15 @@ static void test_writer_open_fails_in_missing_folder(void **state)
     snprintf(path, sizeof path, "%s/no-such-folder/out.xlsx", f->dir);
     writer *w = NULL;
     rf_error err = {0};
+    /* a folder that is not there is the user's mistake: exit 1, not 3 */
     assert_int_equal(writer_open(path, 0, NULL, 0, "rowfit", &w, &err),
-                     RF_ESYSTEM);
+                     RF_EINPUT);
     assert_null(w);
-    assert_non_null(strstr(err.message, "cannot create a temporary file"));
+    assert_non_null(strstr(err.message, "does not exist"));
+    assert_int_equal(count_entries(f->dir), 0);
+    /* writer_check, for `rowfit check`, says the same and creates nothing */
+    assert_int_equal(writer_check(path, 0, NULL, 0, &err), RF_EINPUT);
+    assert_non_null(strstr(err.message, "does not exist"));
     assert_int_equal(count_entries(f->dir), 0);
 }
 

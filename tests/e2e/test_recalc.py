@@ -55,7 +55,9 @@ POISON = -987654.321   # no formula of this job can give it
 # Header = line 1. P-08 has a blank slope (skipped), P-13 and P-14 have no
 # yield yet (estimated). Zone names: one plain, one with a space, one with a
 # space and double quotes (CSV doubles a quote inside a quoted field;
-# RFC 4180 section 2). ''' strings: the data holds """.
+# RFC 4180 section 2). ''' strings: the data holds """. 'east' and 'East'
+# are two levels to rowfit; spreadsheets compare text ignoring case, so the
+# live formula must tell them apart (EXACT), or recalculation would differ.
 PLOTS = '''\
 plot,yield,rain,slope,area,zone
 P-01,41.2,310,2.5,1.20,East
@@ -64,10 +66,10 @@ P-03,45.9,350,1.0,1.60,West Flats
 P-04,40.1,300,3.5,1.10,East
 P-05,36.4,280,5.5,0.80,"North ""Hill"""
 P-06,47.3,365,0.5,1.75,West Flats
-P-07,43.0,330,2.0,1.40,East
+P-07,43.0,330,2.0,1.40,east
 P-08,39.8,305,,1.05,"North ""Hill"""
 P-09,44.6,340,1.5,1.50,West Flats
-P-10,42.2,320,3.0,1.30,East
+P-10,42.2,320,3.0,1.30,east
 P-11,37.9,290,4.5,0.90,"North ""Hill"""
 P-12,46.1,355,0.8,1.65,West Flats
 P-13,,315,2.5,1.25,"North ""Hill"""
