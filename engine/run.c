@@ -84,6 +84,68 @@ static void stage(const run_options *opt, const char *what, size_t rows,
     *t0 = t;
 }
 
+/* One warning per distinct skip reason (the most frequent first, at most
+ * SKIP_REASONS_SHOWN), placed at its first row, so `check` and a run tell
+ * on the terminal what the Estimates statuses tell row by row. */
+#define SKIP_REASONS_SHOWN 5
+#define SKIP_REASONS_TRACKED 64
+
+typedef struct skip_group {
+    const char *why;
+    size_t first, count;
+} skip_group;
+
+static rf_status warn_skips(const design *d, const table *data,
+                            const table *score, rf_warnings *warn)
+{
+    skip_group g[SKIP_REASONS_TRACKED];
+    size_t ng = 0, other = 0;
+    for (size_t o = 0; o < d->n_rows; o++) {
+        if (d->rows[o].status != ROW_SKIPPED)
+            continue;
+        size_t k = 0;
+        while (k < ng && strcmp(g[k].why, d->rows[o].reason) != 0)
+            k++;
+        if (k == ng && ng == SKIP_REASONS_TRACKED) {
+            other++;
+            continue;
+        }
+        if (k == ng) {
+            g[ng].why = d->rows[o].reason;
+            g[ng].first = o;
+            g[ng++].count = 0;
+        }
+        g[k].count++;
+    }
+    for (size_t shown = 0; shown < SKIP_REASONS_SHOWN && shown < ng; shown++) {
+        size_t best = shown;
+        for (size_t k = shown + 1; k < ng; k++)
+            if (g[k].count > g[best].count)
+                best = k;
+        if (best != shown) {
+            skip_group t = g[shown];
+            g[shown] = g[best];
+            g[best] = t;
+        }
+        const design_row *row = &d->rows[g[shown].first];
+        char where[ERROR_WHERE_MAX];
+        table_where(row->source == SOURCE_DATA ? data : score, row->row,
+                    (size_t)-1, where, sizeof where);
+        rf_status st = error_warn(warn, where, "%zu row%s skipped: %s%s",
+                                  g[shown].count,
+                                  g[shown].count == 1 ? "" : "s", g[shown].why,
+                                  g[shown].count == 1 ? "" : " (the first here)");
+        if (st)
+            return st;
+    }
+    for (size_t k = SKIP_REASONS_SHOWN; k < ng; k++)
+        other += g[k].count;
+    if (other)
+        return error_warn(warn, NULL, "%zu more rows skipped for other "
+                          "reasons; each row's status says why", other);
+    return RF_OK;
+}
+
 rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
                   run_result *res, rf_error *err)
 {
@@ -118,6 +180,8 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
     res->rows_estimated = d->n_est;
     res->rows_skipped = d->rows_skipped;
     res->terms = d->p;
+    if ((st = warn_skips(d, data, score, warn)))
+        goto done;
     if (d->n_rows > SHEET_ROWS_MAX) {
         char where[ERROR_WHERE_MAX];
         snprintf(where, sizeof where, "%s:%d", j->file, j->data.line);
