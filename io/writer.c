@@ -900,6 +900,9 @@ rf_status writer_scatter(writer_sheet *s, uint32_t row, uint16_t col,
         chart_title_set_name(ch, title);
         chart_axis_set_name(ch->x_axis, x_name);
         chart_axis_set_name(ch->y_axis, y_name);
+        /* labels below the plot, not on a zero line crossing its middle */
+        chart_axis_set_label_position(ch->x_axis,
+                                      LXW_CHART_AXIS_LABEL_POSITION_LOW);
         chart_legend_set_position(ch, LXW_CHART_LEGEND_NONE);
         e = worksheet_insert_chart(s->ws, row, col, ch);
     }

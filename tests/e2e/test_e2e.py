@@ -242,6 +242,22 @@ def test_linear_job_writes_sheets_in_contract_order():
 
 
 @test
+def test_summary_has_two_charts_over_estimates_columns():
+    # openpyxl drops charts when it reads, so look in the package itself
+    # (ECMA-376 part 1: charts are parts xl/charts/chartN.xml).
+    import zipfile
+    m = main_run()
+    with zipfile.ZipFile(m["path"]) as z:
+        charts = sorted(n for n in z.namelist() if n.startswith("xl/charts/chart"))
+        assert len(charts) == 2, "chart parts %r" % charts
+        xml = z.read(charts[0]).decode()
+        # target (D, after the id column C) against estimate (E)
+        assert "Estimates!$E$2" in xml and "Estimates!$D$2" in xml, xml[:400]
+        xml = z.read(charts[1]).decode()
+        assert "Estimates!$F$2" in xml, "residual column F not plotted"
+
+
+@test
 def test_estimates_columns_in_contract_order():
     head, _ = table(main_run()["wb"], "Estimates")
     assert head == EST_COLUMNS, "Estimates header %r, want %r" % (head, EST_COLUMNS)
