@@ -1,0 +1,721 @@
+/*
+ * test_oom.c: allocation-failure injection, as SQLite and Lua test their
+ * out-of-memory paths. For each target the Nth allocation fails, for
+ * N = 1, 2, 3, ... until a run completes without reaching N; every run that
+ * reached it must return RF_ENOMEM with the error filled, produce no
+ * output object, never crash, and leave exactly as many blocks allocated as
+ * it found (a per-run count, so a leak names its N even without
+ * LeakSanitizer; under `make check SANITIZE=1` LeakSanitizer checks too).
+ *
+ * How: this binary is linked with the GNU linker's --wrap for malloc,
+ * calloc, realloc, strdup, strndup and free (see the Makefile rule in
+ * tests/fuzz/README.md), so every reference to them in our own objects
+ * (io/ and engine/ objects and this file) goes to the __wrap_ functions below.
+ * Libraries (GSL, libxlsxwriter, expat, zlib, libc's own fopen) call malloc
+ * through their own PLT and are NOT affected: that is what we want, since
+ * their out-of-memory behaviour is theirs to test; we test that our code
+ * handles every failure of its own allocations.
+ *
+ * Not for: correctness of the results (the module tests do that); a
+ * completed run is only checked enough to know it did the real work.
+ */
+#include "testutil.h"
+
+#include <dirent.h>
+#include <execinfo.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <gsl/gsl_errno.h>
+
+#include "../engine/design.h"
+#include "../engine/formula.h"
+#include "../engine/job.h"
+#include "../engine/linear.h"
+#include "../engine/run.h"
+#include "../io/csv.h"
+#include "../io/table.h"
+
+#define N(a) (sizeof(a) / sizeof((a)[0]))
+
+/* A target with more allocation points than this is taken to loop. */
+#define OOM_POINTS_MAX 200000L
+
+/* ------------------------------------------------------------ injector */
+
+/* The injector's state is the one global of the test: the wrappers are
+ * called from the modules, which cannot be handed a context. */
+static struct {
+    long countdown;  /* 0: off; else the countdown-th allocation fails */
+    long seen;       /* allocations since armed */
+    int fired;       /* a failure was injected since armed */
+    long live;       /* blocks from the wrapped calls not yet freed */
+    void *stack[32]; /* where the injected failure happened */
+    int depth;
+} oom;
+
+void *__real_malloc(size_t n);
+void *__real_calloc(size_t k, size_t n);
+void *__real_realloc(void *p, size_t n);
+char *__real_strdup(const char *s);
+char *__real_strndup(const char *s, size_t n);
+void __real_free(void *p);
+
+void *__wrap_malloc(size_t n);
+void *__wrap_calloc(size_t k, size_t n);
+void *__wrap_realloc(void *p, size_t n);
+char *__wrap_strdup(const char *s);
+char *__wrap_strndup(const char *s, size_t n);
+void __wrap_free(void *p);
+
+/* 1 when this allocation is the one to fail. Only one fails per run: after
+ * it, allocations succeed again, so the test sees what the code does with
+ * one failure (a cascade would hide a path that ignores the first). */
+static int oom_hit(void)
+{
+    if (oom.countdown == 0)
+        return 0;
+    oom.seen++;
+    if (oom.seen != oom.countdown)
+        return 0;
+    oom.fired = 1;
+    /* glibc's backtrace allocates only inside libc, which is not wrapped */
+    oom.depth = backtrace(oom.stack, (int)N(oom.stack));
+    return 1;
+}
+
+void *__wrap_malloc(size_t n)
+{
+    if (oom_hit())
+        return NULL;
+    void *p = __real_malloc(n);
+    if (p)
+        oom.live++;
+    return p;
+}
+
+void *__wrap_calloc(size_t k, size_t n)
+{
+    if (oom_hit())
+        return NULL;
+    void *p = __real_calloc(k, n);
+    if (p)
+        oom.live++;
+    return p;
+}
+
+/* A failed realloc leaves the old block as it was (C11 7.22.3.5). */
+void *__wrap_realloc(void *p, size_t n)
+{
+    if (oom_hit())
+        return NULL;
+    void *q = __real_realloc(p, n);
+    if (q && p == NULL)
+        oom.live++;
+    return q;
+}
+
+char *__wrap_strdup(const char *s)
+{
+    if (oom_hit())
+        return NULL;
+    char *p = __real_strdup(s);
+    if (p)
+        oom.live++;
+    return p;
+}
+
+char *__wrap_strndup(const char *s, size_t n)
+{
+    if (oom_hit())
+        return NULL;
+    char *p = __real_strndup(s, n);
+    if (p)
+        oom.live++;
+    return p;
+}
+
+void __wrap_free(void *p)
+{
+    if (p)
+        oom.live--;
+    __real_free(p);
+}
+
+/* Mishandled failures listed in full before the test fails; past this
+ * only counted. */
+#define OOM_REPORT_MAX 12
+
+/* Prints one mishandled failure with the stack of the injected failure, as
+ * program+offset lines that `addr2line -f -i -e test_oom OFFSET` turns
+ * into file:line. The sweep goes on, so one run lists every bad N. */
+static void oom_report(const char *msg)
+{
+    print_error("%s\n  stack of the failed allocation:\n", msg);
+    fflush(stdout);
+    fflush(stderr);
+    backtrace_symbols_fd(oom.stack, oom.depth, 2);
+}
+
+static void oom_arm(long n)
+{
+    oom.countdown = n;
+    oom.seen = 0;
+    oom.fired = 0;
+    oom.depth = 0;
+}
+
+/* Stops injecting; returns 1 when this run's failure was injected. */
+static int oom_disarm(void)
+{
+    oom.countdown = 0;
+    return oom.fired;
+}
+
+/* A target runs once with the injector armed: it makes its calls, calls
+ * oom_disarm() as soon as the calls under test are done (so its own checks
+ * and frees are never injected), frees everything it made, and returns the
+ * first status that was not RF_OK (RF_OK when all succeeded). On RF_OK it
+ * checks the result is real. err is the error of the failing call. */
+typedef rf_status (*oom_target)(void *ctx, rf_error *err);
+
+/* Also allowed besides RF_ENOMEM, for a target that reports some failures
+ * another way (none of the targets below needs it yet). */
+typedef struct oom_expect {
+    rf_status also;      /* RF_OK: nothing else allowed */
+    const char *why;
+} oom_expect;
+
+/* Runs target with the 1st, 2nd, ... allocation failing until a run
+ * completes without reaching its N. Fails the test if any N was mishandled;
+ * returns the number of allocation points (allocations of the complete
+ * run). */
+static long oom_sweep(const char *name, oom_target target, void *ctx,
+                      const oom_expect *ex)
+{
+    long bad = 0;
+    for (long n = 1; n <= OOM_POINTS_MAX; n++) {
+        rf_error e;
+        memset(&e, 0, sizeof e);
+        long live = oom.live;
+        oom_arm(n);
+        rf_status st = target(ctx, &e);
+        int fired = oom_disarm();
+        if (!fired) {
+            if (st != RF_OK || oom.live != live)
+                fail_msg("%s: the run with no failure injected returned %s "
+                         "(%s: %s) with %ld block(s) left", name,
+                         error_status_str(st), e.where, e.message,
+                         oom.live - live);
+            if (bad > 0)
+                fail_msg("%s: %ld of %ld allocation failures mishandled",
+                         name, bad, n - 1);
+            print_message("%s: %ld allocation points, each failure "
+                          "reported\n", name, n - 1);
+            return n - 1;
+        }
+        char msg[2 * ERROR_MESSAGE_MAX + ERROR_WHERE_MAX] = "";
+        if (oom.live != live)
+            snprintf(msg, sizeof msg, "%s: allocation %ld failing leaks %ld "
+                     "block(s) (status %s: %s: %s)", name, n,
+                     oom.live - live, error_status_str(st), e.where,
+                     e.message);
+        else if (st == RF_OK)
+            snprintf(msg, sizeof msg, "%s: allocation %ld failed but the "
+                     "run returned ok", name, n);
+        else if (st != RF_ENOMEM
+                 && !(ex && ex->also != RF_OK && st == ex->also))
+            snprintf(msg, sizeof msg, "%s: allocation %ld failing gave %s "
+                     "(%s: %s), not %s", name, n, error_status_str(st),
+                     e.where, e.message, error_status_str(RF_ENOMEM));
+        else if (e.status != st || e.message[0] == '\0')
+            snprintf(msg, sizeof msg, "%s: allocation %ld failing returned "
+                     "%s but the error record says %s: '%s'", name, n,
+                     error_status_str(st), error_status_str(e.status),
+                     e.message);
+        if (msg[0] != '\0' && bad++ < OOM_REPORT_MAX)
+            oom_report(msg);
+    }
+    fail_msg("%s: more than %ld allocation points: a loop?", name,
+             OOM_POINTS_MAX);
+    return 0;
+}
+
+/* ------------------------------------------------------------ fixtures */
+
+/* A fresh folder under /tmp for files a target reads or writes. */
+typedef struct folder {
+    char dir[64];
+    char files[8][160];
+    size_t n;
+} folder;
+
+static void folder_make(folder *f)
+{
+    memset(f, 0, sizeof *f);
+    snprintf(f->dir, sizeof f->dir, "/tmp/rowfit-oom-XXXXXX");
+    assert_non_null(mkdtemp(f->dir));
+}
+
+static const char *folder_write(folder *f, const char *name, const char *text)
+{
+    assert_true(f->n < N(f->files));
+    char *path = f->files[f->n++];
+    size_t len = strlen(f->dir);
+    assert_true(len + 1 + strlen(name) < sizeof f->files[0]);
+    memcpy(path, f->dir, len);
+    path[len] = '/';
+    strcpy(path + len + 1, name);
+    FILE *fp = fopen(path, "wb");
+    assert_non_null(fp);
+    assert_int_equal(fwrite(text, 1, strlen(text), fp), strlen(text));
+    assert_int_equal(fclose(fp), 0);
+    return path;
+}
+
+/* Entries in the folder (not . and ..). */
+static int folder_count(const folder *f)
+{
+    DIR *d = opendir(f->dir);
+    assert_non_null(d);
+    int n = 0;
+    struct dirent *de;
+    while ((de = readdir(d)) != NULL)
+        if (strcmp(de->d_name, ".") != 0 && strcmp(de->d_name, "..") != 0)
+            n++;
+    closedir(d);
+    return n;
+}
+
+/* Removes every file in the folder, then the folder. */
+static void folder_remove(folder *f)
+{
+    DIR *d = opendir(f->dir);
+    assert_non_null(d);
+    struct dirent *de;
+    while ((de = readdir(d)) != NULL) {
+        char path[512];
+        if (strcmp(de->d_name, ".") == 0 || strcmp(de->d_name, "..") == 0)
+            continue;
+        snprintf(path, sizeof path, "%s/%s", f->dir, de->d_name);
+        unlink(path);
+    }
+    closedir(d);
+    rmdir(f->dir);
+}
+
+/* cmocka fixtures, so a failing test still frees and removes what it
+ * made (LeakSanitizer would otherwise blame the test, not the module). */
+static int folder_setup(void **state)
+{
+    folder *f = calloc(1, sizeof *f);
+    if (f == NULL)
+        return -1;
+    folder_make(f);
+    *state = f;
+    return 0;
+}
+
+static int folder_teardown(void **state)
+{
+    folder_remove(*state);
+    free(*state);
+    return 0;
+}
+
+/* A table built cell by cell: "" blank, text strtod reads whole a number,
+ * anything else text; header on line 1, row r on line r + 2. */
+static table *make_table(const char *file, const char *const *names,
+                         size_t nc, const char *const *cells, size_t nr)
+{
+    rf_error e = {0};
+    table *t = table_create(file, NULL);
+    assert_non_null(t);
+    for (size_t c = 0; c < nc; c++)
+        assert_int_equal(table_add_column(t, names[c], (uint32_t)c, 1, &e),
+                         RF_OK);
+    for (size_t r = 0; r < nr; r++) {
+        assert_int_equal(table_append_row(t, (uint32_t)(r + 2), &e), RF_OK);
+        for (size_t c = 0; c < nc; c++) {
+            const char *s = cells[r * nc + c];
+            char *end;
+            if (s[0] == '\0')
+                continue;
+            double v = strtod(s, &end);
+            if (*end == '\0')
+                assert_int_equal(table_set_number(t, c, v, &e), RF_OK);
+            else
+                assert_int_equal(table_set_text(t, c, s, strlen(s), &e),
+                                 RF_OK);
+        }
+    }
+    return t;
+}
+
+/* ------------------------------------------------------------ csv_read */
+
+/* A byte-order mark, CRLF line ends, quoted fields with the delimiter, a
+ * doubled quote and a line break inside, a date, a yes-no value, a blank,
+ * a row shorter than the header (invented values). */
+static const char csv_text[] =
+    "\xEF\xBB\xBF" "id,\"living area\",district,sold,garage,note\r\n"
+    "1,84.5,\"Oakmere, north\",2025-03-14,TRUE,\"said \"\"fine\"\"\"\r\n"
+    "2,112.25,Fennick,2025-04-02,FALSE,\"two\nlines\"\r\n"
+    "3,,Oakmere,2025-05-30,TRUE,\r\n"
+    "4,97,\"Fennick\",2025-06-11,FALSE\r\n"
+    "5,150.75,Oakmere,2024-12-01,TRUE,plain text\r\n";
+
+typedef struct csv_ctx {
+    const char *path;
+} csv_ctx;
+
+static rf_status run_csv(void *ctx, rf_error *err)
+{
+    const csv_ctx *c = ctx;
+    csv_options opt = {0, 0};
+    table *t = NULL;
+    rf_warnings w = {0};
+    rf_status st = csv_read(c->path, "sales.csv", &opt, &t, &w, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(t);
+    } else {
+        assert_int_equal(table_cols(t), 6);
+        assert_int_equal(table_rows(t), 5);
+        assert_string_equal(table_column_name(t, 1), "living area");
+        assert_string_equal(table_cell_text(t, 0, 5), "said \"fine\"");
+        assert_int_equal(table_cell_type(t, 0, 3), CELL_DATE);
+    }
+    table_free(t);
+    error_warnings_clear(&w);
+    return st;
+}
+
+static void test_oom_csv_read_reports_every_failure(void **state)
+{
+    csv_ctx c = { folder_write(*state, "sales.csv", csv_text) };
+    assert_true(oom_sweep("csv_read", run_csv, &c, NULL) > 0);
+}
+
+/* ------------------------------------------------------------ job_parse */
+
+/* Every directive this version accepts, each option of data and score,
+ * quoted names, a BOM, a comment and CRLF (invented names). */
+static const char job_text[] =
+    "\xEF\xBB\xBF# every directive this version accepts\r\n"
+    "job spring-round\r\n"
+    "data \"closed sales.csv\" header 2 delimiter semicolon\r\n"
+    "score listings.csv delimiter tab header 1\r\n"
+    "target price\r\n"
+    "derive age = 2026 - \"year built\"   # years\r\n"
+    "derive big_lot = IF(lot_area > 800, 1, 0)\r\n"
+    "inputs \"living area\", bedrooms, age\r\n"
+    "inputs big_lot\r\n"
+    "categories district, \"roof type\"\r\n"
+    "id parcel\r\n"
+    "output results/spring.xlsx\r\n"
+    "model linear\r\n"
+    "missing stop\r\n"
+    "intercept no\r\n"
+    "ridge 0\r\n"
+    "level 0.9\r\n"
+    "folds 0\r\n"
+    "seed 12345\r\n"
+    "solver exact\r\n";
+
+static rf_status run_job_parse(void *ctx, rf_error *err)
+{
+    (void)ctx;
+    job *j = NULL;
+    rf_status st = job_parse(job_text, "jobs/spring.job", &j, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(j);
+    } else {
+        assert_string_equal(j->name, "spring-round");
+        assert_int_equal(j->n_inputs, 4);
+        assert_int_equal(j->n_categories, 2);
+        assert_int_equal(j->n_derives, 2);
+        assert_string_equal(j->score.resolved, "jobs/listings.csv");
+        assert_int_equal(j->missing, MISSING_STOP);
+    }
+    job_free(j);
+    return st;
+}
+
+static void test_oom_job_parse_reports_every_failure(void **state)
+{
+    (void)state;
+    assert_true(oom_sweep("job_parse", run_job_parse, NULL, NULL) > 0);
+}
+
+/* ------------------------------------------------------------ formula */
+
+/* Functions, text in single quotes, comparison, power and a column name
+ * that needs quotes. formula_eval must not allocate (formula.h: a row
+ * costs no allocation), and formula_spreadsheet's NULL is its RF_ENOMEM. */
+static const char formula_text[] =
+    "IF(district = 'Oakmere', ROUND(SQRT(\"living area\") * 2.385, 2), "
+    "MAX(LN(ABS(lot) + 1), LOG10(lot + 10), EXP(0.5))) "
+    "+ YEAR(sold) - MONTH(sold) / DAY(sold) + MIN(lot, 3) ^ 2";
+
+static rf_status run_formula(void *ctx, rf_error *err)
+{
+    (void)ctx;
+    formula *f = NULL;
+    char *sheet = NULL;
+    rf_status st = formula_parse(formula_text, "t.job:3", &f, err);
+    if (st == RF_OK) {
+        fvalue refs[4];
+        const char *cells[4] = { "C2", "D2", "E2", "F2" };
+        assert_int_equal(formula_nrefs(f), 4);
+        for (size_t i = 0; i < 4; i++) {
+            const char *name = formula_ref(f, i);
+            memset(&refs[i], 0, sizeof refs[i]);
+            if (strcmp(name, "district") == 0) {
+                refs[i].type = FV_TEXT;
+                refs[i].text = "oakmere";
+            } else if (strcmp(name, "sold") == 0) {
+                refs[i].type = FV_NUMBER;
+                refs[i].num = table_date_serial(2025, 3, 14);
+            } else {
+                refs[i].type = FV_NUMBER;
+                refs[i].num = strcmp(name, "lot") == 0 ? 612.5L : 84.5L;
+            }
+        }
+        fvalue out;
+        char why[128] = "";
+        long before = oom.seen;
+        if (formula_eval(f, refs, &out, why, sizeof why) != 0)
+            fail_msg("formula_eval: %s", why);
+        assert_int_equal(oom.seen, before);  /* no allocation per row */
+        assert_int_equal(out.type, FV_NUMBER);
+        sheet = formula_spreadsheet(f, cells);
+        if (sheet == NULL)
+            st = error_nomem(err, "formula_spreadsheet");
+    }
+    oom_disarm();
+    if (st != RF_OK)
+        assert_null(sheet);
+    else
+        assert_non_null(strstr(sheet, "C2"));
+    free(sheet);
+    formula_free(f);
+    return st;
+}
+
+static void test_oom_formula_reports_every_failure(void **state)
+{
+    (void)state;
+    assert_true(oom_sweep("formula_parse+eval+spreadsheet", run_formula,
+                          NULL, NULL) > 0);
+}
+
+/* ------------------------------------------------------------ design */
+
+typedef struct design_ctx {
+    job *j;
+    table *data, *score;
+} design_ctx;
+
+static rf_status run_design(void *ctx, rf_error *err)
+{
+    design_ctx *c = ctx;
+    design *d = NULL;
+    rf_warnings w = {0};
+    rf_status st = design_build(c->j, c->data, c->score, &d, &w, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(d);
+    } else {
+        assert_int_equal(w.n, 2);
+        /* intercept, area, age, district: 2 of 3 levels; roof: none */
+        assert_int_equal(d->p, 5);
+        /* the slate rows are skipped: a level unseen in the fit */
+        assert_int_equal(d->n_est, 1);
+        assert_int_equal(d->rows_skipped, 3);
+    }
+    design_free(d);
+    error_warnings_clear(&w);
+    return st;
+}
+
+static int design_setup(void **state)
+{
+    /* roof has one level in the fitted rows and listings has no id
+     * column: both are warnings, whose allocations fail too */
+    static const char *const names[] = { "id", "price", "area", "built",
+                                         "district", "roof" };
+    static const char *const cells[] = {
+        "1", "210500", "84.5",   "1971", "Oakmere", "tile",
+        "2", "265000", "112.25", "1994", "Fennick", "tile",
+        "3", "199900", "77",     "1958", "Oakmere", "tile",
+        "4", "",       "97",     "1980", "Hollin",  "slate",
+        "5", "301250", "150.75", "2009", "Fennick", "tile",
+        "6", "232000", "90.5",   "n/a",  "Oakmere", "tile",
+        "7", "248700", "101",    "1988", "Hollin",  "tile",
+        "8", "188000", "70.25",  "1963", "Oakmere", "tile",
+    };
+    static const char *const snames[] = { "area", "built", "district",
+                                          "roof" };
+    static const char *const scells[] = {
+        "88",  "1975", "Fennick", "tile",
+        "120", "2001", "Oakmere", "slate",
+    };
+    design_ctx *c = calloc(1, sizeof *c);
+    rf_error e = {0};
+    if (c == NULL)
+        return -1;
+    *state = c;
+    c->data = make_table("sales.csv", names, N(names), cells,
+                         N(cells) / N(names));
+    c->score = make_table("listings.csv", snames, N(snames), scells,
+                          N(scells) / N(snames));
+    if (job_parse("data sales.csv\nscore listings.csv\ntarget price\n"
+                  "derive age = 2026 - built\ninputs area, age\n"
+                  "categories district, roof\nid id\nmodel linear\n",
+                  "t.job", &c->j, &e) != RF_OK) {
+        print_error("job_parse: %s: %s\n", e.where, e.message);
+        return -1;
+    }
+    return 0;
+}
+
+static int design_teardown(void **state)
+{
+    design_ctx *c = *state;
+    job_free(c->j);
+    table_free(c->score);
+    table_free(c->data);
+    free(c);
+    return 0;
+}
+
+static void test_oom_design_build_reports_every_failure(void **state)
+{
+    assert_true(oom_sweep("design_build", run_design, *state, NULL) > 0);
+}
+
+/* ------------------------------------------------------------ linear */
+
+typedef struct linear_ctx {
+    long double X[8 * 4], y[8];
+} linear_ctx;
+
+static rf_status run_linear(void *ctx, rf_error *err)
+{
+    const linear_ctx *c = ctx;
+    linear_model *m = NULL;
+    rf_status st = linear_fit(c->X, c->y, 8, 4, 1, 0.95, &m, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(m);
+    } else {
+        assert_int_equal(m->rank, 3);
+        assert_int_equal(m->drop[3], LINEAR_DROP_COLLINEAR);
+    }
+    linear_free(m);
+    return st;
+}
+
+static void test_oom_linear_fit_reports_every_failure(void **state)
+{
+    (void)state;
+    /* intercept, x1, x2 and x3 = x1 + x2: rank 3 (invented values) */
+    static const double x1[8] = { 2.385, 1.5, 3.75, 4.125, 0.5, 2.0, 5.25,
+                                  3.0 };
+    static const double x2[8] = { 1.0, 4.5, 2.25, 0.75, 3.5, 5.0, 1.25,
+                                  2.75 };
+    linear_ctx c;
+    for (size_t i = 0; i < 8; i++) {
+        c.X[i * 4 + 0] = 1;
+        c.X[i * 4 + 1] = x1[i];
+        c.X[i * 4 + 2] = x2[i];
+        c.X[i * 4 + 3] = (long double)x1[i] + x2[i];
+        c.y[i] = 3.5L + 2.25L * x1[i] - 1.125L * x2[i]
+                 + (i % 2 ? 0.125L : -0.125L);
+    }
+    assert_true(oom_sweep("linear_fit", run_linear, &c, NULL) > 0);
+}
+
+/* ------------------------------------------------------------ run_job */
+
+typedef struct run_ctx {
+    folder *f;
+    const char *job;
+    int files;  /* entries in the folder before a run */
+} run_ctx;
+
+static rf_status run_run(void *ctx, rf_error *err)
+{
+    run_ctx *c = ctx;
+    run_options opt;
+    run_result res;
+    rf_warnings w = {0};
+    memset(&opt, 0, sizeof opt);
+    rf_status st = run_job(c->job, &opt, &w, &res, err);
+    oom_disarm();
+    error_warnings_clear(&w);
+    if (st != RF_OK) {
+        /* a failed run leaves no workbook and no temporary file */
+        assert_int_equal(folder_count(c->f), c->files);
+        return st;
+    }
+    assert_int_equal(folder_count(c->f), c->files + 1);
+    assert_int_equal(res.rows_fitted, 7);
+    assert_int_equal(res.rows_estimated, 2);
+    assert_int_equal(res.rows_skipped, 1);
+    unlink(res.written);
+    return st;
+}
+
+static void test_oom_run_job_reports_every_failure(void **state)
+{
+    folder *f = *state;
+    folder_write(f, "sales.csv",
+                 "id,price,area,built,district\n"
+                 "1,210500,84.5,1971,Oakmere\n"
+                 "2,265000,112.25,1994,Fennick\n"
+                 "3,199900,77,1958,Oakmere\n"
+                 "4,,97,1980,Hollin\n"
+                 "5,301250,150.75,2009,Fennick\n"
+                 "6,232000,90.5,n/a,Oakmere\n"
+                 "7,248700,101,1988,Hollin\n"
+                 "8,188000,70.25,1963,Oakmere\n"
+                 "9,277300,131.5,2003,Fennick\n");
+    folder_write(f, "listings.csv",
+                 "id;area;built;district\n20;88;1975;Fennick\n");
+    run_ctx c;
+    c.f = f;
+    c.job = folder_write(f, "tiny.job",
+                         "job tiny\ndata sales.csv\n"
+                         "score listings.csv delimiter semicolon\n"
+                         "target price\nderive age = 2026 - built\n"
+                         "inputs area, age\ncategories district\nid id\n"
+                         "model linear\nlevel 0.9\n");
+    c.files = folder_count(f);
+    assert_true(oom_sweep("run_job", run_run, &c, NULL) > 0);
+}
+
+int main(void)
+{
+    /* as main() does: GSL reports, never aborts */
+    gsl_set_error_handler_off();
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test_setup_teardown(
+            test_oom_csv_read_reports_every_failure, folder_setup,
+            folder_teardown),
+        cmocka_unit_test(test_oom_job_parse_reports_every_failure),
+        cmocka_unit_test(test_oom_formula_reports_every_failure),
+        cmocka_unit_test_setup_teardown(
+            test_oom_design_build_reports_every_failure, design_setup,
+            design_teardown),
+        cmocka_unit_test(test_oom_linear_fit_reports_every_failure),
+        cmocka_unit_test_setup_teardown(
+            test_oom_run_job_reports_every_failure, folder_setup,
+            folder_teardown),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
