@@ -642,6 +642,12 @@ static void test_oom_linear_fit_reports_every_failure(void **state)
 
 /* ------------------------------------------------------------ run_job */
 
+/* A whole job: read the job and two CSV files, a derive, a category, a
+ * skipped row (year 'n/a'), a term dropped as collinear (twice = 2 * area,
+ * so its warning is allocated too), the fit, the report and the workbook.
+ * libxlsxwriter's own allocations are not injected (see the top); ours
+ * around it are, including the writer's temporary-file name. */
+
 typedef struct run_ctx {
     folder *f;
     const char *job;
@@ -657,6 +663,9 @@ static rf_status run_run(void *ctx, rf_error *err)
     memset(&opt, 0, sizeof opt);
     rf_status st = run_job(c->job, &opt, &w, &res, err);
     oom_disarm();
+    size_t w_dropped = 0;
+    for (size_t i = 0; i < w.n; i++)
+        w_dropped += strstr(w.items[i], "'twice' was dropped") != NULL;
     error_warnings_clear(&w);
     if (st != RF_OK) {
         /* a failed run leaves no workbook and no temporary file */
@@ -667,6 +676,8 @@ static rf_status run_run(void *ctx, rf_error *err)
     assert_int_equal(res.rows_fitted, 7);
     assert_int_equal(res.rows_estimated, 2);
     assert_int_equal(res.rows_skipped, 1);
+    assert_int_equal(res.terms, 6);
+    assert_int_equal(w_dropped, 1);
     unlink(res.written);
     return st;
 }
@@ -693,8 +704,9 @@ static void test_oom_run_job_reports_every_failure(void **state)
                          "job tiny\ndata sales.csv\n"
                          "score listings.csv delimiter semicolon\n"
                          "target price\nderive age = 2026 - built\n"
-                         "inputs area, age\ncategories district\nid id\n"
-                         "model linear\nlevel 0.9\n");
+                         "derive twice = area * 2\n"
+                         "inputs area, age, twice\ncategories district\n"
+                         "id id\nmodel linear\nlevel 0.9\n");
     c.files = folder_count(f);
     assert_true(oom_sweep("run_job", run_run, &c, NULL) > 0);
 }
