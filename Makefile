@@ -29,7 +29,8 @@ endif
 # Debian packages: the build needs the -dev ones, the tests the rest.
 DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
              libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev nettle-dev
-DEB_TEST  := libcmocka-dev python3 python3-openpyxl libreoffice-calc-nogui time
+DEB_TEST  := libcmocka-dev python3 python3-openpyxl libreoffice-calc-nogui time \
+             clang libclang-rt-14-dev
 
 IO_SRC     := $(sort $(wildcard io/*.c))
 ENGINE_SRC := $(sort $(filter-out engine/main.c,$(wildcard engine/*.c)))
@@ -43,7 +44,7 @@ else
 PROG := rowfit
 endif
 
-.PHONY: all deps test-deps demo check unit bench install clean
+.PHONY: all deps test-deps demo check unit bench fuzz fuzz-replay install clean
 all: $(PROG)
 
 $(PROG): $(BUILD)/engine/main.o $(LIB_OBJ)
@@ -65,6 +66,40 @@ $(BUILD)/tests/test_oom: tests/test_oom.c tests/testutil.h $(LIB_OBJ)
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(OOM_WRAP) $(LDLIBS) -lcmocka
 
+# libFuzzer harnesses (tests/fuzz/README.md): `make fuzz` fuzzes each for
+# FUZZ_TIME seconds; `make fuzz-replay` runs the committed seeds once each,
+# as part of `make check`.
+FUZZ_TIME  ?= 180
+FUZZ_FLAGS := -g -O1 -fsanitize=fuzzer,address,undefined \
+              -fno-sanitize-recover=undefined -std=c11 $(WARN) -D_POSIX_C_SOURCE=200809L
+FUZZ_BIN   := build-fuzz/fuzz_csv build-fuzz/fuzz_job build-fuzz/fuzz_formula
+
+build-fuzz/fuzz_csv: tests/fuzz/fuzz_csv.c io/csv.c io/table.c io/error.c
+	@mkdir -p $(dir $@)
+	clang $(FUZZ_FLAGS) -o $@ $^ -lm
+build-fuzz/fuzz_job: tests/fuzz/fuzz_job.c engine/job.c engine/formula.c io/table.c io/error.c
+	@mkdir -p $(dir $@)
+	clang $(FUZZ_FLAGS) -o $@ $^ -lm
+build-fuzz/fuzz_formula: tests/fuzz/fuzz_formula.c engine/formula.c io/table.c io/error.c
+	@mkdir -p $(dir $@)
+	clang $(FUZZ_FLAGS) -o $@ $^ -lm
+
+fuzz: $(FUZZ_BIN)
+	@for h in csv job formula; do \
+	    mkdir -p build-fuzz/corpus-$$h build-fuzz/crashes-$$h; \
+	    build-fuzz/fuzz_$$h build-fuzz/corpus-$$h tests/fuzz/corpus-$$h \
+	        -max_total_time=$(FUZZ_TIME) -print_final_stats=1 \
+	        -artifact_prefix=build-fuzz/crashes-$$h/ || exit 1; \
+	done
+
+fuzz-replay: $(FUZZ_BIN)
+	@for h in csv job formula; do \
+	    build-fuzz/fuzz_$$h tests/fuzz/corpus-$$h/* \
+	        $$(ls -d tests/fuzz/crashes-$$h/* 2>/dev/null) > build-fuzz/replay-$$h.log 2>&1 \
+	        || { cat build-fuzz/replay-$$h.log; exit 1; }; \
+	    echo "fuzz-replay $$h: $$(ls tests/fuzz/corpus-$$h | wc -l) seeds, no crash"; \
+	done
+
 # The demo data generator (its output is committed in workbooks/).
 $(BUILD)/gen-houses: workbooks/gen-houses.c
 	@mkdir -p $(dir $@)
@@ -84,7 +119,7 @@ demo: deps
 	./rowfit workbooks/house-prices.job
 
 check: test-deps
-	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN) $(BUILD)/gen-houses
+	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN) $(BUILD)/gen-houses $(FUZZ_BIN)
 	@ROWFIT=$(PROG) BUILD=$(BUILD) GEN=$(BUILD)/gen-houses sh tests/run.sh $(TEST_BIN)
 
 unit: $(TEST_BIN)
@@ -98,4 +133,4 @@ install: $(PROG)
 	install -m 755 $(PROG) $(DESTDIR)$(PREFIX)/bin/rowfit
 
 clean:
-	rm -rf build build-san rowfit workbooks/*-results.xlsx tests/out
+	rm -rf build build-san build-fuzz rowfit workbooks/*-results.xlsx tests/out

@@ -108,6 +108,9 @@ static rf_status fail_at(reader *r, uint32_t line, const char *fmt, ...)
 
 /* ---- numbers and dates ------------------------------------------------ */
 
+/* Longest text read as a number (see convert_c_locale). */
+#define CSV_NUMBER_CHARS_MAX 1000
+
 /* Powers of ten that are exact in a double (10^22 < 2^53 * 2^22). */
 static const double pow10_exact[23] = {
     1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11,
@@ -119,9 +122,12 @@ static const double pow10_exact[23] = {
  * locale alone. */
 static int convert_c_locale(const char *s, size_t len, double *v)
 {
-    char small[64];
-    char *buf = len < sizeof small ? small : malloc(len + 1);
-    if (buf == NULL)
+    /* A fixed buffer, so running out of memory can never turn a number
+     * into text; a "number" longer than this is text (no double has more
+     * than 767 significant digits that matter, and none of them in a
+     * spreadsheet user's file). */
+    char buf[CSV_NUMBER_CHARS_MAX + 1];
+    if (len > CSV_NUMBER_CHARS_MAX)
         return 0;
     memcpy(buf, s, len);
     buf[len] = '\0';
@@ -140,8 +146,6 @@ static int convert_c_locale(const char *s, size_t len, double *v)
             ok = 1;
         }
     }
-    if (buf != small)
-        free(buf);
     return ok;
 }
 

@@ -70,14 +70,18 @@ rf_status error_warn(rf_warnings *w, const char *where, const char *fmt, ...)
     if (w->n == w->cap) {
         size_t cap = w->cap ? 2 * w->cap : 16;
         char **items = realloc(w->items, cap * sizeof *items);
-        if (items == NULL)
-            return RF_ENOMEM;
+        if (items == NULL) {
+            w->dropped++;   /* counted, like warnings past the cap */
+            return RF_OK;
+        }
         w->items = items;
         w->cap = cap;
     }
     char *copy = strdup(msg);
-    if (copy == NULL)
-        return RF_ENOMEM;
+    if (copy == NULL) {
+        w->dropped++;
+        return RF_OK;
+    }
     w->items[w->n++] = copy;
     return RF_OK;
 }

@@ -54,7 +54,9 @@ typedef struct rf_warnings {
     size_t dropped;
 } rf_warnings;
 
-/* Appends a warning. Returns RF_ENOMEM only when the copy cannot be made. */
+/* Appends a warning. Always RF_OK: a warning that cannot be stored (no
+ * memory) is counted in `dropped`, like those past the cap, since losing a
+ * warning must not turn a good run into a failed one. */
 rf_status error_warn(rf_warnings *w, const char *where, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
 

@@ -32,6 +32,16 @@ for s in tests/nist/nist.py tests/nist/harder.py tests/e2e/test_e2e.py tests/e2e
     [ "$name" = nist ] && grep -E "^NIST .* (set|minimum)" "$out/$name.log"
     [ "$name" = harder ] && grep -E "harder Filip" "$out/$name.log"
 done
+# The fuzz harnesses replay their committed seed corpora once each (a seed
+# passes when the harness neither crashes nor trips a sanitizer).
+for h in csv job formula; do
+    bin=build-fuzz/fuzz_$h
+    [ -x "$bin" ] || continue
+    n=$(ls tests/fuzz/corpus-$h | wc -l)
+    "$bin" tests/fuzz/corpus-$h/* > "$out/fuzz-$h.log" 2>&1; rc=$?
+    if [ $rc -eq 0 ]; then echo "$n passed, 0 failed" >> "$out/fuzz-$h.log"; fi
+    count "fuzz-$h" "$out/fuzz-$h.log" $rc
+done
 if [ -n "$bad_suites" ]; then
     echo "failing suites:$bad_suites (logs in $out/)"
     for s in $bad_suites; do echo "--- $s"; grep -E "FAIL|ERROR|Error|error" "$out/$s.log" | head -20; done
