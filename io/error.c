@@ -94,3 +94,30 @@ void error_warnings_clear(rf_warnings *w)
     w->items = NULL;
     w->n = w->cap = w->dropped = 0;
 }
+
+void error_warnings_move(rf_warnings *to, rf_warnings *from)
+{
+    for (size_t i = 0; i < from->n; i++) {
+        if (to->n >= ERROR_WARNINGS_MAX) {
+            to->dropped++;
+            free(from->items[i]);
+            continue;
+        }
+        if (to->n == to->cap) {
+            size_t cap = to->cap ? 2 * to->cap : 16;
+            char **items = realloc(to->items, cap * sizeof *items);
+            if (items == NULL) {
+                to->dropped++;
+                free(from->items[i]);
+                continue;
+            }
+            to->items = items;
+            to->cap = cap;
+        }
+        to->items[to->n++] = from->items[i];
+    }
+    to->dropped += from->dropped;
+    free(from->items);
+    from->items = NULL;
+    from->n = from->cap = from->dropped = 0;
+}

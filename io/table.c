@@ -194,10 +194,6 @@ rf_status table_add_column(table *t, const char *name, uint32_t src_col,
 {
     char where[ERROR_WHERE_MAX];
     header_where(t, src_col, src_row, where, sizeof where);
-    assert(t->nrows == 0 && "columns are added before rows");
-    if (t->nrows != 0)
-        return error_set(err, RF_EINPUT, where,
-                         "column '%s' added after the first row", name);
 
     size_t len = strlen(name);
     const char *s = table_trim_span(name, &len);
@@ -240,6 +236,21 @@ rf_status table_add_column(table *t, const char *name, uint32_t src_col,
     col->name[len] = '\0';
     col->src_col = src_col;
     col->src_row = src_row;
+    /* A column found after rows were read (a data cell right of the
+     * header) is blank in the rows before it. */
+    if (t->caprows > 0) {
+        col->type = malloc(t->caprows * sizeof *col->type);
+        col->val = malloc(t->caprows * sizeof *col->val);
+        if (col->type == NULL || col->val == NULL) {
+            free(col->type);
+            free(col->val);
+            free(col->name);
+            return error_nomem(err, where);
+        }
+        memset(col->type, CELL_BLANK, t->nrows * sizeof *col->type);
+        for (size_t r = 0; r < t->nrows; r++)
+            col->val[r].num = 0.0;
+    }
     t->ncols++;
     return RF_OK;
 }

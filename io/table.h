@@ -48,8 +48,8 @@ void table_free(table *t);  /* accepts NULL */
 
 /* Adds a column named name, found in the source's column src_col (0-based:
  * 0 = column A), with header cell at source row src_row. Duplicate names are
- * an RF_EINPUT error naming both header cells. Columns must all be added
- * before the first row. */
+ * an RF_EINPUT error naming both header cells. A column added after rows
+ * (a reader meeting a cell right of the header) is blank in those rows. */
 rf_status table_add_column(table *t, const char *name, uint32_t src_col,
                            uint32_t src_row, rf_error *err);
 
