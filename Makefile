@@ -16,7 +16,7 @@ SANITIZE ?= 0
 WARN    := -Wall -Wextra -Wpedantic -Wshadow -Wwrite-strings
 CFLAGS  += -std=c11 $(OPT) -g $(WARN) -D_POSIX_C_SOURCE=200809L \
            -DROWFIT_VERSION='"$(VERSION)"'
-LDLIBS  := -lxlsxwriter -lgsl -lopenblas -lminizip -lexpat -lz -lnettle -lm
+LDLIBS  := -lxlsxwriter -lfreexl -lgsl -lopenblas -lminizip -lexpat -lz -lnettle -lm
 
 ifeq ($(SANITIZE),1)
 BUILD   := build-san
@@ -55,7 +55,7 @@ $(BUILD)/%.o: %.c
 	$(CC) $(CFLAGS) -MMD -MP -c -o $@ $<
 
 # A unit test links the module objects; helpers in tests/testutil.h.
-$(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h $(LIB_OBJ)
+$(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h tests/ziptest.h $(LIB_OBJ)
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS) -lcmocka
 
@@ -72,7 +72,9 @@ $(BUILD)/tests/test_oom: tests/test_oom.c tests/testutil.h $(LIB_OBJ)
 FUZZ_TIME  ?= 180
 FUZZ_FLAGS := -g -O1 -fsanitize=fuzzer,address,undefined \
               -fno-sanitize-recover=undefined -std=c11 $(WARN) -D_POSIX_C_SOURCE=200809L
-FUZZ_BIN   := build-fuzz/fuzz_csv build-fuzz/fuzz_job build-fuzz/fuzz_formula
+FUZZ_NAMES := csv job formula xlsx ods xls
+FUZZ_BIN   := $(patsubst %,build-fuzz/fuzz_%,$(FUZZ_NAMES))
+SHEET_SRC  := io/grid.c io/csv.c io/table.c io/error.c
 
 build-fuzz/fuzz_csv: tests/fuzz/fuzz_csv.c io/csv.c io/table.c io/error.c
 	@mkdir -p $(dir $@)
@@ -83,9 +85,18 @@ build-fuzz/fuzz_job: tests/fuzz/fuzz_job.c engine/job.c engine/formula.c io/tabl
 build-fuzz/fuzz_formula: tests/fuzz/fuzz_formula.c engine/formula.c io/table.c io/error.c
 	@mkdir -p $(dir $@)
 	clang $(FUZZ_FLAGS) -o $@ $^ -lm
+build-fuzz/fuzz_xlsx: tests/fuzz/fuzz_xlsx.c io/xlsx.c io/zipxml.c $(SHEET_SRC)
+	@mkdir -p $(dir $@)
+	clang $(FUZZ_FLAGS) -o $@ $^ -lminizip -lexpat -lz -lm
+build-fuzz/fuzz_ods: tests/fuzz/fuzz_ods.c io/ods.c io/zipxml.c $(SHEET_SRC)
+	@mkdir -p $(dir $@)
+	clang $(FUZZ_FLAGS) -o $@ $^ -lminizip -lexpat -lz -lm
+build-fuzz/fuzz_xls: tests/fuzz/fuzz_xls.c io/xls.c $(SHEET_SRC)
+	@mkdir -p $(dir $@)
+	clang $(FUZZ_FLAGS) -o $@ $^ -lfreexl -lm
 
 fuzz: $(FUZZ_BIN)
-	@for h in csv job formula; do \
+	@for h in $(FUZZ_NAMES); do \
 	    mkdir -p build-fuzz/corpus-$$h build-fuzz/crashes-$$h; \
 	    build-fuzz/fuzz_$$h build-fuzz/corpus-$$h tests/fuzz/corpus-$$h \
 	        -max_total_time=$(FUZZ_TIME) -print_final_stats=1 \
@@ -93,7 +104,7 @@ fuzz: $(FUZZ_BIN)
 	done
 
 fuzz-replay: $(FUZZ_BIN)
-	@for h in csv job formula; do \
+	@for h in $(FUZZ_NAMES); do \
 	    build-fuzz/fuzz_$$h tests/fuzz/corpus-$$h/* \
 	        $$(ls -d tests/fuzz/crashes-$$h/* 2>/dev/null) > build-fuzz/replay-$$h.log 2>&1 \
 	        || { cat build-fuzz/replay-$$h.log; exit 1; }; \

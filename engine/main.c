@@ -5,12 +5,14 @@
  * line is wrong, 3 the system failed. Nothing else lives here.
  */
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
 
 #include <gsl/gsl_errno.h>
 
 #include "../io/error.h"
+#include "peek.h"
 #include "run.h"
 
 #ifndef ROWFIT_VERSION
@@ -20,7 +22,7 @@
 static const char usage[] =
     "usage: rowfit [options] JOB...       run each job file; write its result workbook\n"
     "       rowfit check [options] JOB... read and check each job and its data; write nothing\n"
-    "       rowfit peek FILE [SHEET]      list a spreadsheet's sheets or a sheet's columns\n"
+    "       rowfit peek FILE [SHEET]      a workbook's sheets, or a sheet's (or CSV file's) columns\n"
     "       rowfit --help | --version\n"
     "\n"
     "options:\n"
@@ -59,6 +61,28 @@ static void print_error(const rf_error *e)
         fprintf(stderr, "rowfit: %s\n", e->message);
 }
 
+/* rowfit peek FILE [SHEET] */
+static int peek(int argc, char **argv)
+{
+    if (argc < 1 || argc > 2)
+        return bad_usage("%s", "peek takes a file and, optionally, a sheet");
+    rf_warnings warn = { 0 };
+    rf_error err = { 0 };
+    char *text = NULL;
+    rf_status st = peek_text(argv[0], argv[0], argc == 2 ? argv[1] : NULL,
+                             &text, &warn, &err);
+    for (size_t i = 0; i < warn.n; i++)
+        fprintf(stderr, "rowfit: %s\n", warn.items[i]);
+    error_warnings_clear(&warn);
+    if (st != RF_OK) {
+        print_error(&err);
+        return error_exit_code(st);
+    }
+    fputs(text, stdout);
+    free(text);
+    return 0;
+}
+
 int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
@@ -71,9 +95,7 @@ int main(int argc, char **argv)
         check = 1;
         first = 2;
     } else if (argc > 1 && strcmp(argv[1], "peek") == 0) {
-        fprintf(stderr, "rowfit: peek: not available yet in this version "
-                        "(it comes with the spreadsheet readers)\n");
-        return 2;
+        return peek(argc - 2, argv + 2);
     }
     for (int i = first; i < argc; i++) {
         const char *a = argv[i];

@@ -10,7 +10,7 @@
 #include <sys/stat.h>
 #include <time.h>
 
-#include "../io/csv.h"
+#include "../io/reader.h"
 #include "../io/fileinfo.h"
 #include "../io/table.h"
 #include "../io/writer.h"
@@ -56,15 +56,8 @@ static rf_status read_table(const job *j, const job_table *jt,
                          "the %s path '%s' is a folder, not a file", role,
                          jt->path);
     }
-    if (jt->sheet) {
-        char where[ERROR_WHERE_MAX];
-        snprintf(where, sizeof where, "%s:%d", j->file, jt->line);
-        return error_set(err, RF_EINPUT, where,
-                         "'sheet' applies to spreadsheet files; '%s' is read "
-                         "as CSV text", jt->path);
-    }
-    csv_options o = { jt->delimiter, jt->header };
-    return csv_read(jt->resolved, jt->path, &o, out, warn, err);
+    reader_options o = { jt->sheet, (uint32_t)jt->header, jt->delimiter };
+    return reader_read(jt->resolved, jt->path, &o, out, warn, err);
 }
 
 static double now_seconds(void)

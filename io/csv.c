@@ -2,7 +2,7 @@
  * csv.c: the CSV reader (see csv.h). Streams the file in 64 KiB blocks
  * through a byte-at-a-time state machine (RFC 4180 quoting, CRLF/LF/CR line
  * ends) and a UTF-8 check, so memory holds one record at a time plus the
- * table. Not a spreadsheet reader; the cell rules are in set_cell().
+ * table. Not a spreadsheet reader; the cell rules are in read_cell().
  *
  * Choices a user can see (docs/ should repeat them):
  * - Numbers: optional sign, digits with an optional '.', optional exponent.
@@ -17,6 +17,7 @@
  */
 #include "csv.h"
 
+#include <assert.h>
 #include <errno.h>
 #include <float.h>
 #include <locale.h>
@@ -36,6 +37,7 @@
 #define CSV_NUMBER_MAX 1024        /* longest number text converted */
 
 enum { S_START, S_UNQUOTED, S_QUOTED, S_QUOTE_SEEN, S_AFTER_QUOTE };
+enum { LC_PLAIN, LC_DELIM, LC_END, LC_CR, LC_OTHER };  /* see fast_record() */
 
 typedef struct field {
     size_t off, len;  /* in reader.rec; the bytes are NUL-terminated */
@@ -73,6 +75,10 @@ typedef struct reader {
     int saw_text;        /* a non-blank record was seen */
     uint32_t header_line;
     size_t ncols;
+
+    table_cell_in *cells;  /* a record's cells, one per column */
+    unsigned char stop_unquoted[256], stop_quoted[256];  /* see feed() */
+    unsigned char line_class[256];                       /* fast_record() */
 } reader;
 
 static int is_space(char c)
@@ -83,6 +89,20 @@ static int is_space(char c)
 static int is_digit(char c)
 {
     return c >= '0' && c <= '9';
+}
+
+/* table_trim_span, inlined: it runs for every cell. */
+static inline const char *trim(const char *s, size_t *len)
+{
+    size_t n = *len;
+    while (n > 0 && is_space(*s)) {
+        s++;
+        n--;
+    }
+    while (n > 0 && is_space(s[n - 1]))
+        n--;
+    *len = n;
+    return s;
 }
 
 static const char *delim_name(char d)
@@ -149,17 +169,54 @@ static int convert_c_locale(const char *s, size_t len, double *v)
     return ok;
 }
 
-int csv_parse_number(const char *s, size_t len, double *v)
+/* The common cell: a sign, at most 15 digits and an optional '.', so the
+ * digits are an exact integer below 2^53 and the scale an exact power of
+ * ten, and one division rounds correctly (Clinger's fast path, see
+ * parse_number). Returns 0 for anything else, which parse_number reads.
+ * s[0..len) is trimmed, len > 0. */
+static inline int parse_short(const char *s, size_t len, double *v)
 {
-    s = table_trim_span(s, &len);
-    if (len == 0 || len > CSV_NUMBER_MAX)
+#if FLT_EVAL_METHOD == 0
+    size_t i = s[0] == '+' || s[0] == '-';
+    if (len - i > 16)
         return 0;
+    size_t k = i, point = 0;  /* point: the index after the '.' */
+    uint64_t m = 0;
+    for (; k < len; k++) {
+        unsigned d = (unsigned)(unsigned char)s[k] - '0';
+        if (d < 10)
+            m = m * 10 + d;
+        else if (s[k] == '.' && point == 0)
+            point = k + 1;
+        else
+            return 0;
+    }
+    size_t ndig = len - i - (point != 0);
+    if (ndig == 0 || ndig > 15)
+        return 0;
+    size_t frac = point ? len - point : 0;
+    double d = frac ? (double)m / pow10_exact[frac] : (double)m;
+    *v = s[0] == '-' ? -d : d;
+    return 1;
+#else
+    (void)s;
+    (void)len;
+    (void)v;
+    return 0;
+#endif
+}
+
+/* s[0..len), already trimmed, 0 < len <= CSV_NUMBER_MAX. */
+static int parse_number(const char *s, size_t len, double *v)
+{
     size_t i = 0;
     int neg = 0;
     if (s[i] == '+' || s[i] == '-') {
         neg = s[i] == '-';
         i++;
     }
+    if (parse_short(s, len, v))
+        return 1;
     uint64_t mant = 0;  /* significant digits, while they fit */
     int sig = 0, digits = 0, inexact = 0;
     long exp10 = 0;
@@ -225,6 +282,14 @@ int csv_parse_number(const char *s, size_t len, double *v)
     return convert_c_locale(s, len, v);
 }
 
+int csv_parse_number(const char *s, size_t len, double *v)
+{
+    s = trim(s, &len);
+    if (len == 0 || len > CSV_NUMBER_MAX)
+        return 0;
+    return parse_number(s, len, v);
+}
+
 static int two_digits(const char *s, int *v)
 {
     if (!is_digit(s[0]) || !is_digit(s[1]))
@@ -263,30 +328,46 @@ static int parse_iso_date(const char *s, size_t n, double *serial)
 
 /* ---- records ---------------------------------------------------------- */
 
-static rf_status set_cell(reader *r, size_t col, const field *f)
+/* The cell rules. A cell's first byte says which of them can apply, so
+ * most cells are tried against one rule only. */
+static void read_cell(const char *base, const field *f, table_cell_in *cell)
 {
-    const char *raw = r->rec + f->off;
+    const char *raw = base + f->off;
     size_t len = f->len;
-    const char *s = table_trim_span(raw, &len);
-    double v;
-    if (len == 0)
-        return RF_OK;  /* the row starts blank */
-    if (csv_parse_number(s, len, &v))
-        return table_set_number(r->t, col, v, r->err);
-    if (parse_iso_date(s, len, &v))
-        return table_set_date(r->t, col, v, r->err);
-    if (table_word_is(s, len, "true") || table_word_is(s, len, "false"))
-        return table_set_bool(r->t, col, s[0] == 't' || s[0] == 'T',
-                              r->err);
-    if (f->quoted)
-        return table_set_text(r->t, col, raw, f->len, r->err);
-    return table_set_text(r->t, col, s, len, r->err);
+    const char *s = trim(raw, &len);
+    if (len == 0) {
+        cell->type = CELL_BLANK;
+        return;
+    }
+    char c = s[0];
+    if (is_digit(c) || c == '-' || c == '+' || c == '.') {
+        /* A date is never a number (it has a '-' after a digit twice), so
+         * its '-' can pick which to try first. */
+        if (len >= 10 && s[4] == '-' && parse_iso_date(s, len, &cell->num)) {
+            cell->type = CELL_DATE;
+            return;
+        }
+        if (parse_short(s, len, &cell->num) ||
+            (len <= CSV_NUMBER_MAX && parse_number(s, len, &cell->num))) {
+            cell->type = CELL_NUMBER;
+            return;
+        }
+    } else if (c == 't' || c == 'T' || c == 'f' || c == 'F') {
+        if (table_word_is(s, len, "true") || table_word_is(s, len, "false")) {
+            cell->type = CELL_BOOL;
+            cell->num = c == 't' || c == 'T';
+            return;
+        }
+    }
+    cell->type = CELL_TEXT;
+    cell->text = f->quoted ? raw : s;
+    cell->len = f->quoted ? f->len : len;
 }
 
-static int field_is_empty(const reader *r, const field *f)
+static int field_is_empty(const char *base, const field *f)
 {
     size_t len = f->len;
-    table_trim_span(r->rec + f->off, &len);
+    trim(base + f->off, &len);
     return len == 0;
 }
 
@@ -295,10 +376,13 @@ static rf_status make_header(reader *r)
     r->have_header = 1;
     r->header_line = r->rec_line;
     r->ncols = r->nf;
+    r->cells = calloc(r->ncols, sizeof *r->cells);
+    if (r->cells == NULL)
+        return error_nomem(r->err, r->name);
     for (size_t i = 0; i < r->nf; i++) {
         const char *name = r->rec + r->fields[i].off;
         char blank[32];
-        if (field_is_empty(r, &r->fields[i])) {
+        if (field_is_empty(r->rec, &r->fields[i])) {
             char letters[16];
             table_column_letters((uint32_t)i, letters, sizeof letters);
             snprintf(blank, sizeof blank, "column %s", letters);
@@ -321,43 +405,56 @@ static rf_status make_header(reader *r)
     return RF_OK;
 }
 
-static rf_status end_record(reader *r)
+/* A record after the header: its cells go into a new row of the table.
+ * A row whose cells are all blank is skipped like a blank line. */
+static rf_status end_data_record(reader *r, const char *base)
 {
+    size_t n = r->nf < r->ncols ? r->nf : r->ncols;
+    int filled = 0;
+    for (size_t i = 0; i < n; i++) {
+        read_cell(base, &r->fields[i], &r->cells[i]);
+        filled |= r->cells[i].type != CELL_BLANK;
+    }
+    for (size_t i = n; i < r->nf; i++)
+        if (!field_is_empty(base, &r->fields[i])) {
+            char where[ERROR_WHERE_MAX];
+            snprintf(where, sizeof where, "%s:%lu", r->name,
+                     (unsigned long)r->rec_line);
+            return error_set(r->err, RF_EINPUT, where,
+                             "this row has %zu values but the header "
+                             "(line %lu) names %zu columns; a value that "
+                             "contains %s must be in double quotes",
+                             r->nf, (unsigned long)r->header_line,
+                             r->ncols, delim_name(r->delim));
+        }
+    if (!filled)
+        return RF_OK;
+    r->saw_text = 1;
+    return table_append_cells(r->t, r->rec_line, r->cells, n, r->err);
+}
+
+/* A whole record: r->fields, with offsets from base (r->rec, or the line
+ * in the read buffer for a record read by fast_record). Only r->rec's
+ * fields are NUL-terminated, so the header always comes through r->rec. */
+static rf_status end_record(reader *r, const char *base)
+{
+    if (r->have_header)
+        return end_data_record(r, base);
     int blank = 1;
     for (size_t i = 0; i < r->nf && blank; i++)
-        blank = field_is_empty(r, &r->fields[i]);
+        blank = field_is_empty(base, &r->fields[i]);
     if (blank)
         return RF_OK;
     r->saw_text = 1;
-    if (!r->have_header) {
-        if (r->header_row > 0 && r->rec_line < (uint32_t)r->header_row)
-            return RF_OK;
-        if (r->header_row > 0 && r->rec_line != (uint32_t)r->header_row)
-            return fail_at(r, (uint32_t)r->header_row,
-                           "no header row on line %d: that line is blank, "
-                           "inside a quoted value, or past the end of the "
-                           "file", r->header_row);
-        return make_header(r);
-    }
-    if (r->nf > r->ncols) {
-        for (size_t i = r->ncols; i < r->nf; i++)
-            if (!field_is_empty(r, &r->fields[i])) {
-                char where[ERROR_WHERE_MAX];
-                snprintf(where, sizeof where, "%s:%lu", r->name,
-                         (unsigned long)r->rec_line);
-                return error_set(r->err, RF_EINPUT, where,
-                                 "this row has %zu values but the header "
-                                 "(line %lu) names %zu columns; a value that "
-                                 "contains %s must be in double quotes",
-                                 r->nf, (unsigned long)r->header_line,
-                                 r->ncols, delim_name(r->delim));
-            }
-    }
-    rf_status s = table_append_row(r->t, r->rec_line, r->err);
-    size_t n = r->nf < r->ncols ? r->nf : r->ncols;
-    for (size_t i = 0; i < n && s == RF_OK; i++)
-        s = set_cell(r, i, &r->fields[i]);
-    return s;
+    if (r->header_row > 0 && r->rec_line < (uint32_t)r->header_row)
+        return RF_OK;
+    if (r->header_row > 0 && r->rec_line != (uint32_t)r->header_row)
+        return fail_at(r, (uint32_t)r->header_row,
+                       "no header row on line %d: that line is blank, "
+                       "inside a quoted value, or past the end of the "
+                       "file", r->header_row);
+    assert(base == r->rec);
+    return make_header(r);
 }
 
 /* ---- the byte machine ------------------------------------------------- */
@@ -390,20 +487,29 @@ static rf_status push(reader *r, char c)
     return RF_OK;
 }
 
+/* Grows r->fields to hold one more field. */
+static rf_status grow_fields(reader *r)
+{
+    size_t cap = r->fcap ? 2 * r->fcap : 64;
+    if (cap > SIZE_MAX / sizeof(field))
+        return error_nomem(r->err, r->name);
+    field *p = realloc(r->fields, cap * sizeof *p);
+    if (p == NULL)
+        return error_nomem(r->err, r->name);
+    r->fields = p;
+    r->fcap = cap;
+    return RF_OK;
+}
+
 static rf_status end_field(reader *r)
 {
     rf_status s = push(r, '\0');
     if (s != RF_OK)
         return s;
     if (r->nf == r->fcap) {
-        size_t cap = r->fcap ? 2 * r->fcap : 64;
-        if (cap > SIZE_MAX / sizeof(field))
-            return error_nomem(r->err, r->name);
-        field *p = realloc(r->fields, cap * sizeof *p);
-        if (p == NULL)
-            return error_nomem(r->err, r->name);
-        r->fields = p;
-        r->fcap = cap;
+        s = grow_fields(r);
+        if (s != RF_OK)
+            return s;
     }
     field *f = &r->fields[r->nf++];
     f->off = r->field_off;
@@ -419,7 +525,7 @@ static rf_status finish_record(reader *r)
 {
     rf_status s = end_field(r);
     if (s == RF_OK)
-        s = end_record(r);
+        s = end_record(r, r->rec);
     r->rec_len = 0;
     r->field_off = 0;
     r->nf = 0;
@@ -481,95 +587,256 @@ static void start_record(reader *r)
     }
 }
 
-static rf_status feed(reader *r, const unsigned char *buf, size_t n)
+/* One byte through the state machine: the general path, taken for the
+ * bytes that end a run of plain field bytes (see feed). */
+static rf_status step(reader *r, unsigned char c)
 {
     rf_status s = RF_OK;
-    for (size_t i = 0; i < n && s == RF_OK; i++) {
-        unsigned char c = buf[i];
-        if (c >= 0x80 || r->u_need > 0) {
-            s = check_utf8(r, c);
+    if (c >= 0x80 || r->u_need > 0) {
+        s = check_utf8(r, c);
+        if (s != RF_OK)
+            return s;
+        if (c >= 0x80) {
+            r->pending_cr = 0;
+            start_record(r);
+            if (r->state == S_START) {
+                r->field_line = r->line;
+                r->state = S_UNQUOTED;
+            } else if (r->state == S_QUOTE_SEEN) {
+                r->state = S_AFTER_QUOTE;
+            }
+            return push(r, (char)c);
+        }
+    }
+    if (c == 0)
+        return error_set(r->err, RF_EINPUT, r->name,
+                         "binary file, not CSV text (a NUL byte on "
+                         "line %lu)", (unsigned long)r->line);
+    if (c == '\n' && r->pending_cr) {
+        r->pending_cr = 0;
+        return RF_OK;
+    }
+    r->pending_cr = c == '\r';
+    int nl = c == '\n' || c == '\r';
+    switch (r->state) {
+    case S_START:
+        if (nl) {
+            if (r->rec_started)
+                s = finish_record(r);
+        } else if (c == (unsigned char)r->delim) {
+            start_record(r);
+            s = end_field(r);
+        } else if (c == '"') {
+            start_record(r);
+            r->field_line = r->line;
+            r->field_quoted = 1;
+            r->state = S_QUOTED;
+        } else if (is_space((char)c)) {
+            start_record(r);  /* leading spaces are trimmed anyway */
+        } else {
+            start_record(r);
+            r->field_line = r->line;
+            r->state = S_UNQUOTED;
+            s = push(r, (char)c);
+        }
+        break;
+    case S_UNQUOTED:
+        if (nl)
+            s = finish_record(r);
+        else if (c == (unsigned char)r->delim)
+            s = end_field(r);
+        else
+            s = push(r, (char)c);
+        break;
+    case S_QUOTED:
+        if (c == '"')
+            r->state = S_QUOTE_SEEN;
+        else
+            s = push(r, nl ? '\n' : (char)c);
+        break;
+    case S_QUOTE_SEEN:
+    case S_AFTER_QUOTE:
+        if (c == '"' && r->state == S_QUOTE_SEEN) {
+            r->state = S_QUOTED;  /* a doubled quote */
+            s = push(r, '"');
+        } else if (nl) {
+            s = finish_record(r);
+        } else if (c == (unsigned char)r->delim) {
+            s = end_field(r);
+        } else if (is_space((char)c)) {
+            r->state = S_AFTER_QUOTE;
+        } else {
+            r->state = S_AFTER_QUOTE;
+            s = push(r, (char)c);
+        }
+        break;
+    }
+    if (nl)
+        r->line++;
+    return s;
+}
+
+/* Appends n plain bytes to the field being read, as n push() calls would. */
+static rf_status append(reader *r, const unsigned char *p, size_t n)
+{
+    if (r->rec_len - r->field_off + n > CSV_FIELD_MAX)
+        return fail_at(r, r->field_line,
+                       "a value starting on this line is longer than %u "
+                       "bytes; is a closing quote missing?", CSV_FIELD_MAX);
+    while (r->rec_cap - r->rec_len < n) {
+        rf_status s = grow_rec(r);
+        if (s != RF_OK)
+            return s;
+    }
+    memcpy(r->rec + r->rec_len, p, n);
+    r->rec_len += n;
+    return RF_OK;
+}
+
+#define ONES UINT64_C(0x0101010101010101)
+#define HIGHS UINT64_C(0x8080808080808080)
+
+/* The high bit of each byte of x that is not zero. Exact: no carry crosses
+ * a byte, unlike the shorter (x - ONES) & ~x test, which can flag a byte
+ * above a zero one. */
+static inline uint64_t nonzero_bytes(uint64_t x)
+{
+    return (((x & ~HIGHS) + ~HIGHS) | x) & HIGHS;
+}
+
+/* A mask with the high bit set in each byte of x that ends a run of
+ * plain bytes: the delimiter, LF, CR, '"', NUL, or 0x80 and above. This is
+ * the UTF-8 check's fast path: a word of ASCII is one test (SWAR, H. S.
+ * Warren, "Hacker's Delight", 2nd ed., section 6-1). */
+static inline uint64_t stop_bytes(uint64_t x, uint64_t delim)
+{
+    uint64_t plain = nonzero_bytes(x ^ delim) &
+                     nonzero_bytes(x ^ (ONES * '\n')) &
+                     nonzero_bytes(x ^ (ONES * '\r')) &
+                     nonzero_bytes(x ^ (ONES * '"')) & nonzero_bytes(x);
+    return (~plain | x) & HIGHS;
+}
+
+/* The common record, read in place: a whole line in buf[0..n) after the
+ * header, plain ASCII without quotes or NUL, ending in LF or CRLF. Its
+ * fields are split where they lie (eight bytes at a time: each word's stop
+ * bytes are found at once and visited in order) and handed to end_record
+ * without copying. Returns the bytes used (the line and its line end), or 0
+ * when the record is not such a line (then nothing has changed and step()
+ * reads it); sets *s. */
+static size_t fast_record(reader *r, const unsigned char *buf, size_t n,
+                          rf_status *s)
+{
+    const unsigned char *cls = r->line_class;
+    const uint64_t delim = ONES * (unsigned char)r->delim;
+    size_t w = 0, start = 0, nf = 0;
+    *s = RF_OK;
+    for (;;) {
+        uint64_t stop;
+        if (w >= n)
+            return 0;
+        if (n - w >= 8) {
+            uint64_t x;
+            memcpy(&x, buf + w, 8);
+#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_BIG_ENDIAN__
+            x = __builtin_bswap64(x);  /* byte j of the text at bits 8j */
+#endif
+            stop = stop_bytes(x, delim);
+        } else {
+            /* The last few bytes of the buffer, as a mask of the same
+             * shape. */
+            stop = 0;
+            for (size_t j = w; j < n; j++)
+                if (cls[buf[j]] != LC_PLAIN)
+                    stop |= UINT64_C(0x80) << (8 * (j - w));
+        }
+        while (stop != 0) {
+            size_t j = w + (size_t)__builtin_ctzll(stop) / 8;
+            stop &= stop - 1;
+            unsigned char k = cls[buf[j]];
+            size_t next = j + 1;
+            if (k == LC_CR) {
+                if (next == n || buf[next] != '\n')
+                    return 0;  /* a lone CR ends a line too: step() knows */
+                k = LC_END;
+                next++;
+            } else if (k == LC_OTHER) {
+                return 0;
+            }
+            if (nf == r->fcap && (*s = grow_fields(r)) != RF_OK)
+                return 0;
+            field *f = &r->fields[nf++];
+            f->off = start;
+            f->len = j - start;
+            f->quoted = 0;
+            start = next;
+            if (k == LC_END) {
+                r->nf = nf;
+                r->rec_line = r->line;
+                *s = end_record(r, (const char *)buf);
+                r->nf = 0;
+                r->line++;
+                return start;
+            }
+        }
+        w += 8;
+    }
+}
+
+/* Inside a field, runs of plain bytes (ASCII that is neither a line end,
+ * the delimiter, a quote in a quoted field, nor NUL) only need copying: they
+ * are found with a table lookup per byte and copied at once; every other
+ * byte, and every byte outside a field, goes through step(). */
+static rf_status feed(reader *r, const unsigned char *buf, size_t n)
+{
+    size_t i = 0;
+    while (i < n) {
+        if (r->state == S_START && !r->rec_started && r->have_header &&
+            r->u_need == 0 && !r->pending_cr) {
+            rf_status s;
+            size_t used = fast_record(r, buf + i, n - i, &s);
             if (s != RF_OK)
                 return s;
-            if (c >= 0x80) {
-                r->pending_cr = 0;
-                start_record(r);
-                if (r->state == S_START) {
-                    r->field_line = r->line;
-                    r->state = S_UNQUOTED;
-                } else if (r->state == S_QUOTE_SEEN) {
-                    r->state = S_AFTER_QUOTE;
-                }
-                s = push(r, (char)c);
+            if (used > 0) {
+                i += used;
                 continue;
             }
         }
-        if (c == 0)
-            return error_set(r->err, RF_EINPUT, r->name,
-                             "binary file, not CSV text (a NUL byte on "
-                             "line %lu)", (unsigned long)r->line);
-        if (c == '\n' && r->pending_cr) {
-            r->pending_cr = 0;
-            continue;
-        }
-        r->pending_cr = c == '\r';
-        int nl = c == '\n' || c == '\r';
-        switch (r->state) {
-        case S_START:
-            if (nl) {
-                if (r->rec_started)
-                    s = finish_record(r);
-            } else if (c == (unsigned char)r->delim) {
-                start_record(r);
-                s = end_field(r);
-            } else if (c == '"') {
-                start_record(r);
-                r->field_line = r->line;
-                r->field_quoted = 1;
-                r->state = S_QUOTED;
-            } else if (is_space((char)c)) {
-                start_record(r);  /* leading spaces are trimmed anyway */
-            } else {
-                start_record(r);
-                r->field_line = r->line;
-                r->state = S_UNQUOTED;
-                s = push(r, (char)c);
+        if (r->u_need == 0 && !r->pending_cr &&
+            (r->state == S_UNQUOTED || r->state == S_QUOTED)) {
+            const unsigned char *stop =
+                r->state == S_UNQUOTED ? r->stop_unquoted : r->stop_quoted;
+            size_t j = i;
+            while (j < n && !stop[buf[j]])
+                j++;
+            if (j > i) {
+                rf_status s = append(r, buf + i, j - i);
+                if (s != RF_OK)
+                    return s;
+                i = j;
+                if (i == n)
+                    break;
             }
-            break;
-        case S_UNQUOTED:
-            if (nl)
-                s = finish_record(r);
-            else if (c == (unsigned char)r->delim)
-                s = end_field(r);
-            else
-                s = push(r, (char)c);
-            break;
-        case S_QUOTED:
-            if (c == '"')
-                r->state = S_QUOTE_SEEN;
-            else
-                s = push(r, nl ? '\n' : (char)c);
-            break;
-        case S_QUOTE_SEEN:
-        case S_AFTER_QUOTE:
-            if (c == '"' && r->state == S_QUOTE_SEEN) {
-                r->state = S_QUOTED;  /* a doubled quote */
-                s = push(r, '"');
-            } else if (nl) {
-                s = finish_record(r);
-            } else if (c == (unsigned char)r->delim) {
-                s = end_field(r);
-            } else if (is_space((char)c)) {
-                r->state = S_AFTER_QUOTE;
-            } else {
-                r->state = S_AFTER_QUOTE;
-                s = push(r, (char)c);
-            }
-            break;
         }
-        if (nl)
-            r->line++;
+        rf_status s = step(r, buf[i++]);
+        if (s != RF_OK)
+            return s;
     }
-    return s;
+    return RF_OK;
+}
+
+/* The byte classes that feed() and fast_record() scan with. */
+static void make_tables(reader *r)
+{
+    for (int c = 0; c < 256; c++) {
+        int stop = c == 0 || c == '\n' || c == '\r' || c >= 0x80;
+        int delim = c == (unsigned char)r->delim;
+        r->stop_unquoted[c] = (unsigned char)(stop || delim);
+        r->stop_quoted[c] = (unsigned char)(stop || c == '"');
+        r->line_class[c] = delim ? LC_DELIM : c == '\n' ? LC_END :
+                           c == '\r' ? LC_CR :
+                           stop || c == '"' ? LC_OTHER : LC_PLAIN;
+    }
 }
 
 static rf_status finish(reader *r)
@@ -717,6 +984,8 @@ rf_status csv_read(const char *path, const char *name, const csv_options *opt,
             goto done;
     }
 
+    make_tables(&r);
+
     size_t n;
     int first = 1;
     while ((n = fread(buf, 1, CSV_BLOCK, f)) > 0) {
@@ -760,6 +1029,7 @@ done:
     table_free(r.t);
     free(r.rec);
     free(r.fields);
+    free(r.cells);
     free(buf);
     fclose(f);
     return s;

@@ -97,6 +97,10 @@ void error_warnings_clear(rf_warnings *w)
 
 void error_warnings_move(rf_warnings *to, rf_warnings *from)
 {
+    if (to == NULL) {   /* the caller keeps no warnings */
+        error_warnings_clear(from);
+        return;
+    }
     for (size_t i = 0; i < from->n; i++) {
         if (to->n >= ERROR_WARNINGS_MAX) {
             to->dropped++;

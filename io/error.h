@@ -60,8 +60,8 @@ typedef struct rf_warnings {
 rf_status error_warn(rf_warnings *w, const char *where, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
 
-/* Appends every warning of from to to (respecting to's cap) and leaves
- * from empty. */
+/* Appends every warning of from to to (respecting to's cap; to may be
+ * NULL, which drops them) and leaves from empty. */
 void error_warnings_move(rf_warnings *to, rf_warnings *from);
 
 /* Frees the items; w itself is the caller's and is left empty. */

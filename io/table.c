@@ -26,6 +26,8 @@ _Static_assert(sizeof(cell_value) <= 8, "a cell value fits in 8 bytes");
 #define ROWS_FIRST 256          /* first row capacity; then doubled */
 #define ARENA_BLOCK (64 * 1024) /* text arena block; longer texts get their
                                    own block */
+#define STAGE_ROWS 64           /* rows gathered row by row before they are
+                                   written into the columns */
 
 typedef struct column {
     char *name;           /* trimmed, owned */
@@ -50,6 +52,16 @@ struct table {
     uint32_t *src;        /* source row per row */
     size_t nrows, caprows;
     arena_block *arena;   /* newest block first */
+    /* The last nstaged rows are still row-major in the stage, stage_cols
+     * cells a row, and are copied into the columns a column at a time
+     * every STAGE_ROWS rows: writing twenty arrays at once row by row is
+     * what made reading slow (the memory system follows a few streams of
+     * writes, not twenty). The setters write the last row there; adding a
+     * column or trimming flushes the stage first; the getters look there
+     * for the last rows. */
+    uint8_t *stage_type;
+    cell_value *stage_val;
+    size_t stage_cols, nstaged;
 };
 
 static char *dup_string(const char *s)
@@ -96,6 +108,17 @@ int table_word_is(const char *s, size_t n, const char *word)
 
 static int is_yesno_text(const char *s)
 {
+    /* Most text is none of the four words, and its first letter says so:
+     * this runs for every text cell a reader stores. */
+    while (is_space(*s))
+        s++;
+    switch (*s) {
+    case 'y': case 'Y': case 'n': case 'N':
+    case 't': case 'T': case 'f': case 'F':
+        break;
+    default:
+        return 0;
+    }
     size_t n = strlen(s);
     s = table_trim_span(s, &n);
     return table_word_is(s, n, "yes") || table_word_is(s, n, "no") ||
@@ -132,6 +155,8 @@ void table_free(table *t)
     }
     free(t->cols);
     free(t->src);
+    free(t->stage_type);
+    free(t->stage_val);
     arena_block *b = t->arena;
     while (b != NULL) {
         arena_block *next = b->next;
@@ -175,6 +200,38 @@ static const char *arena_copy(table *t, const char *s, size_t len)
     return p;
 }
 
+/* Copies the staged rows into the columns (see struct table). */
+static void flush_stage(table *t)
+{
+    if (t->nstaged == 0)
+        return;
+    size_t first = t->nrows - t->nstaged, nc = t->stage_cols;
+    assert(nc == t->ncols);
+    for (size_t c = 0; c < nc; c++) {
+        uint8_t *type = t->cols[c].type + first;
+        cell_value *val = t->cols[c].val + first;
+        for (size_t j = 0; j < t->nstaged; j++) {
+            type[j] = t->stage_type[j * nc + c];
+            val[j] = t->stage_val[j * nc + c];
+        }
+    }
+    t->nstaged = 0;
+}
+
+/* A cell's type and value wherever it is, in the columns or the stage. */
+static inline cell_type cell_at(const table *t, size_t row, size_t col,
+                                cell_value *v)
+{
+    size_t first = t->nrows - t->nstaged;
+    if (row >= first) {
+        size_t i = (row - first) * t->stage_cols + col;
+        *v = t->stage_val[i];
+        return (cell_type)t->stage_type[i];
+    }
+    *v = t->cols[col].val[row];
+    return (cell_type)t->cols[col].type[row];
+}
+
 /* The place of a column's header cell, for messages. */
 static void header_where(const table *t, uint32_t src_col, uint32_t src_row,
                          char *buf, size_t n)
@@ -194,6 +251,7 @@ rf_status table_add_column(table *t, const char *name, uint32_t src_col,
 {
     char where[ERROR_WHERE_MAX];
     header_where(t, src_col, src_row, where, sizeof where);
+    flush_stage(t);
 
     size_t len = strlen(name);
     const char *s = table_trim_span(name, &len);
@@ -286,20 +344,61 @@ static int grow_rows(table *t)
     return 1;
 }
 
+/* Makes the stage fit the columns; 0 on no memory. */
+static int ready_stage(table *t)
+{
+    if (t->stage_type != NULL && t->stage_cols == t->ncols)
+        return 1;
+    assert(t->nstaged == 0);
+    size_t nc = t->ncols;
+    if (nc > SIZE_MAX / STAGE_ROWS / sizeof(cell_value))
+        return 0;
+    uint8_t *type = malloc(STAGE_ROWS * nc * sizeof *type);
+    cell_value *val = malloc(STAGE_ROWS * nc * sizeof *val);
+    if (type == NULL || val == NULL) {
+        free(type);
+        free(val);
+        return 0;
+    }
+    free(t->stage_type);
+    free(t->stage_val);
+    t->stage_type = type;
+    t->stage_val = val;
+    t->stage_cols = nc;
+    return 1;
+}
+
+/* Adds a row in the stage (or, with no columns, only its source row) and
+ * points *type and *val at its ncols cells, which the caller fills. */
+static rf_status new_row(table *t, uint32_t src_row, uint8_t **type,
+                         cell_value **val, rf_error *err)
+{
+    if (t->nstaged == STAGE_ROWS)
+        flush_stage(t);
+    if ((t->nrows == t->caprows && !grow_rows(t)) ||
+        (t->ncols > 0 && !ready_stage(t)))
+        return error_nomem(err, t->file);
+    t->src[t->nrows] = src_row;
+    t->nrows++;
+    if (t->ncols > 0) {
+        *type = t->stage_type + t->nstaged * t->ncols;
+        *val = t->stage_val + t->nstaged * t->ncols;
+        t->nstaged++;
+    }
+    return RF_OK;
+}
+
 rf_status table_append_row(table *t, uint32_t src_row, rf_error *err)
 {
-    if (t->nrows == t->caprows && !grow_rows(t)) {
-        char where[ERROR_WHERE_MAX];
-        snprintf(where, sizeof where, "%s", t->file);
-        return error_nomem(err, where);
-    }
-    size_t r = t->nrows;
-    t->src[r] = src_row;
+    uint8_t *type = NULL;
+    cell_value *val = NULL;
+    rf_status s = new_row(t, src_row, &type, &val, err);
+    if (s != RF_OK)
+        return s;
     for (size_t c = 0; c < t->ncols; c++) {
-        t->cols[c].type[r] = CELL_BLANK;
-        t->cols[c].val[r].num = 0.0;
+        type[c] = CELL_BLANK;
+        val[c].num = 0.0;
     }
-    t->nrows++;
     return RF_OK;
 }
 
@@ -308,13 +407,20 @@ static void put_cell(table *t, size_t col, cell_type type, cell_value v)
 {
     column *c = &t->cols[col];
     size_t r = t->nrows - 1;
-    cell_type old = (cell_type)c->type[r];
+    uint8_t *slot_type = &c->type[r];
+    cell_value *slot_val = &c->val[r];
+    if (t->nstaged > 0) {  /* then the last row is staged */
+        size_t i = (t->nstaged - 1) * t->stage_cols + col;
+        slot_type = &t->stage_type[i];
+        slot_val = &t->stage_val[i];
+    }
+    cell_type old = (cell_type)*slot_type;
     if (old != CELL_BLANK)
         c->count[old]--;
-    if (old == CELL_TEXT && is_yesno_text(c->val[r].text))
+    if (old == CELL_TEXT && is_yesno_text(slot_val->text))
         c->yesno_text--;
-    c->type[r] = (uint8_t)type;
-    c->val[r] = v;
+    *slot_type = (uint8_t)type;
+    *slot_val = v;
     if (type != CELL_BLANK)
         c->count[type]++;
     if (type == CELL_TEXT && is_yesno_text(v.text))
@@ -386,8 +492,71 @@ rf_status table_set_error(table *t, size_t col, const char *s, size_t len,
     return set_string(t, col, CELL_ERROR, s, len, err);
 }
 
+rf_status table_append_cells(table *t, uint32_t src_row,
+                             const table_cell_in *cells, size_t n,
+                             rf_error *err)
+{
+    assert(n <= t->ncols);
+    if (n > t->ncols)
+        return error_set(err, RF_EINPUT, t->file,
+                         "a row of %zu cells for %zu columns", n, t->ncols);
+    uint8_t *type = NULL;
+    cell_value *val = NULL;
+    rf_status s = new_row(t, src_row, &type, &val, err);
+    if (s != RF_OK)
+        return s;
+    /* Each cell is written once, with no old value to uncount, in one call
+     * per row rather than one per cell: this is a reader's inner loop. */
+    size_t r = t->nrows - 1, nc = t->ncols;
+    size_t c = 0;
+    for (; c < n; c++) {
+        column *col = &t->cols[c];
+        cell_type k = cells[c].type;
+        cell_value v;
+        switch (k) {
+        case CELL_BLANK:
+            v.num = 0.0;
+            break;
+        case CELL_NUMBER:
+        case CELL_DATE:
+            v.num = cells[c].num;
+            break;
+        case CELL_BOOL:
+            v.num = cells[c].num != 0.0 ? 1.0 : 0.0;
+            break;
+        case CELL_TEXT:
+        case CELL_ERROR:
+            v.text = arena_copy(t, cells[c].text, cells[c].len);
+            if (v.text == NULL) {
+                char where[ERROR_WHERE_MAX];
+                table_where(t, r, c, where, sizeof where);
+                s = error_nomem(err, where);
+                goto blank_rest;
+            }
+            if (k == CELL_TEXT && is_yesno_text(v.text))
+                col->yesno_text++;
+            break;
+        default:
+            assert(0 && "not a cell type");
+            s = error_set(err, RF_EINPUT, t->file, "cell type %d is not "
+                          "one of the table's", (int)k);
+            goto blank_rest;
+        }
+        type[c] = (uint8_t)k;
+        val[c] = v;
+        col->count[k]++;  /* count[CELL_BLANK] is not read */
+    }
+blank_rest:
+    for (; c < nc; c++) {
+        type[c] = CELL_BLANK;
+        val[c].num = 0.0;
+    }
+    return s;
+}
+
 void table_trim(table *t)
 {
+    flush_stage(t);
     while (t->nrows > 0) {
         size_t r = t->nrows - 1;
         for (size_t c = 0; c < t->ncols; c++)
@@ -467,24 +636,27 @@ const char *table_kind_name(column_kind k)
 cell_type table_cell_type(const table *t, size_t row, size_t col)
 {
     assert(row < t->nrows && col < t->ncols);
-    return (cell_type)t->cols[col].type[row];
+    cell_value v;
+    return cell_at(t, row, col, &v);
 }
 
 double table_cell_number(const table *t, size_t row, size_t col)
 {
     assert(row < t->nrows && col < t->ncols);
-    cell_type k = (cell_type)t->cols[col].type[row];
+    cell_value v;
+    cell_type k = cell_at(t, row, col, &v);
     if (k == CELL_NUMBER || k == CELL_DATE || k == CELL_BOOL)
-        return t->cols[col].val[row].num;
+        return v.num;
     return NAN;
 }
 
 const char *table_cell_text(const table *t, size_t row, size_t col)
 {
     assert(row < t->nrows && col < t->ncols);
-    cell_type k = (cell_type)t->cols[col].type[row];
+    cell_value v;
+    cell_type k = cell_at(t, row, col, &v);
     if (k == CELL_TEXT || k == CELL_ERROR)
-        return t->cols[col].val[row].text;
+        return v.text;
     return NULL;
 }
 
@@ -538,9 +710,8 @@ char *table_cell_show(const table *t, size_t row, size_t col, char *buf,
                       size_t n)
 {
     assert(row < t->nrows && col < t->ncols);
-    const column *c = &t->cols[col];
-    cell_value v = c->val[row];
-    switch ((cell_type)c->type[row]) {
+    cell_value v;
+    switch (cell_at(t, row, col, &v)) {
     case CELL_BLANK:
         snprintf(buf, n, "blank");
         break;

@@ -66,6 +66,23 @@ rf_status table_set_text(table *t, size_t col, const char *s, size_t len,
 rf_status table_set_error(table *t, size_t col, const char *s, size_t len,
                           rf_error *err);
 
+/* A cell for table_append_cells: its type, and the value (NUMBER, DATE,
+ * BOOL) or the text's len bytes (TEXT, ERROR; copied). */
+typedef struct table_cell_in {
+    cell_type type;
+    double num;
+    const char *text;
+    size_t len;
+} table_cell_in;
+
+/* Appends a row and sets its first n cells (n <= table_cols; the rest are
+ * blank) in one call: the same as table_append_row and a table_set_* per
+ * cell, for a reader that has a whole row. On error the row may be partly
+ * set, as with table_set_*. */
+rf_status table_append_cells(table *t, uint32_t src_row,
+                             const table_cell_in *cells, size_t n,
+                             rf_error *err);
+
 /* Drops trailing rows whose cells are all blank; call when reading ends. */
 void table_trim(table *t);
 

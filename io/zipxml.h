@@ -50,6 +50,11 @@ rf_status zipxml_parse(zipxml *z, const char *member,
 void zipxml_fail(zipxml *z, rf_status st, const char *where,
                  const char *fmt, ...) __attribute__((format(printf, 4, 5)));
 
+/* From a handler: stop parsing the current part here, successfully (a
+ * reader that found what it wanted, e.g. a sheet's <dimension>). The rest
+ * of the part is neither inflated nor checked. */
+void zipxml_stop(zipxml *z);
+
 /* The current part's name and the line expat is on, for messages. */
 const char *zipxml_member(const zipxml *z);
 unsigned long zipxml_line(const zipxml *z);

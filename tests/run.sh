@@ -24,7 +24,7 @@ for t in "$@"; do
     "$t" > "$out/$name.log" 2>&1; rc=$?
     count "$name" "$out/$name.log" $rc
 done
-for s in tests/nist/nist.py tests/nist/harder.py tests/e2e/test_e2e.py tests/e2e/demo_truth.py tests/e2e/test_recalc.py; do
+for s in tests/nist/nist.py tests/nist/harder.py tests/e2e/test_e2e.py tests/e2e/demo_truth.py tests/e2e/test_recalc.py tests/e2e/test_formats.py; do
     [ -f "$s" ] || continue
     name=$(basename "$s" .py)
     "$PYTHON" "$s" > "$out/$name.log" 2>&1; rc=$?
@@ -34,7 +34,7 @@ for s in tests/nist/nist.py tests/nist/harder.py tests/e2e/test_e2e.py tests/e2e
 done
 # The fuzz harnesses replay their committed seed corpora once each (a seed
 # passes when the harness neither crashes nor trips a sanitizer).
-for h in csv job formula; do
+for h in csv job formula xlsx ods xls; do
     bin=build-fuzz/fuzz_$h
     [ -x "$bin" ] || continue
     n=$(ls tests/fuzz/corpus-$h | wc -l)
