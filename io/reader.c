@@ -70,8 +70,9 @@ static int name_fits(const char *name, reader_format f)
         return strcasecmp(dot, "xlsx") == 0 || strcasecmp(dot, "xlsm") == 0;
     case FORMAT_ODS:
         return strcasecmp(dot, "ods") == 0;
-    case FORMAT_XLS:
-        return strcasecmp(dot, "xls") == 0;
+    case FORMAT_XLS:   /* an encrypted .xlsx is a compound file too */
+        return strcasecmp(dot, "xls") == 0 || strcasecmp(dot, "xlsx") == 0
+               || strcasecmp(dot, "xlsm") == 0;
     }
     return 1;
 }
@@ -110,11 +111,8 @@ rf_status reader_detect(const char *path, const char *name,
                              "OpenDocument spreadsheet mimetype)");
         *fmt = kind == 1 ? FORMAT_XLSX : FORMAT_ODS;
     } else if (k == 8 && memcmp(sig, cfbf, 8) == 0) {
-        if (xls_is_encrypted_ooxml(path))
-            return error_set(err, RF_EINPUT, name,
-                             "a password-protected (encrypted) workbook: "
-                             "rowfit cannot read it; save a copy without a "
-                             "password");
+        /* .xls, or a password-protected .xlsx (also a compound file):
+         * the .xls reader tells them apart and says which */
         *fmt = FORMAT_XLS;
     } else {
         *fmt = FORMAT_CSV;

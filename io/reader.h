@@ -1,8 +1,9 @@
 /*
  * reader.h: one entry for every input table. Decides the format from the
  * file's content, not its name (a zip holding xl/workbook.xml is .xlsx, one
- * holding an OpenDocument spreadsheet is .ods, a compound file is .xls or a
- * password-protected .xlsx, anything else is CSV text), warns when the name
+ * holding an OpenDocument spreadsheet is .ods, a compound file is .xls (or
+ * a password-protected .xlsx, which the .xls reader recognises and
+ * refuses), anything else is CSV text), warns when the name
  * says otherwise, and hands the file to its reader. Knows formats, not
  * models.
  */
@@ -30,7 +31,7 @@ typedef struct reader_options {
 } reader_options;
 
 /* The format of the file at path, by content. RF_EINPUT for a zip that is
- * no workbook or an encrypted workbook; RF_ESYSTEM when it cannot be read.
+ * no workbook; RF_ESYSTEM when it cannot be read.
  * A name whose extension says another format gets a warning. */
 rf_status reader_detect(const char *path, const char *name,
                         reader_format *fmt, rf_warnings *warn,

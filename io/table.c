@@ -52,9 +52,9 @@ struct table {
     uint32_t *src;        /* source row per row */
     size_t nrows, caprows;
     arena_block *arena;   /* newest block first */
-    /* The last nstaged rows are still row-major in the stage, stage_cols
-     * cells a row, and are copied into the columns a column at a time
-     * every STAGE_ROWS rows: writing twenty arrays at once row by row is
+    /* The last nstaged rows are still in the stage, STAGE_ROWS cells per
+     * column for stage_cols columns, and are copied into the columns a
+     * column at a time every STAGE_ROWS rows: writing twenty arrays at once row by row is
      * what made reading slow (the memory system follows a few streams of
      * writes, not twenty). The setters write the last row there; adding a
      * column or trimming flushes the stage first; the getters look there
@@ -208,12 +208,10 @@ static void flush_stage(table *t)
     size_t first = t->nrows - t->nstaged, nc = t->stage_cols;
     assert(nc == t->ncols);
     for (size_t c = 0; c < nc; c++) {
-        uint8_t *type = t->cols[c].type + first;
-        cell_value *val = t->cols[c].val + first;
-        for (size_t j = 0; j < t->nstaged; j++) {
-            type[j] = t->stage_type[j * nc + c];
-            val[j] = t->stage_val[j * nc + c];
-        }
+        memcpy(t->cols[c].type + first, t->stage_type + c * STAGE_ROWS,
+               t->nstaged * sizeof *t->stage_type);
+        memcpy(t->cols[c].val + first, t->stage_val + c * STAGE_ROWS,
+               t->nstaged * sizeof *t->stage_val);
     }
     t->nstaged = 0;
 }
@@ -224,7 +222,7 @@ static inline cell_type cell_at(const table *t, size_t row, size_t col,
 {
     size_t first = t->nrows - t->nstaged;
     if (row >= first) {
-        size_t i = (row - first) * t->stage_cols + col;
+        size_t i = col * STAGE_ROWS + (row - first);
         *v = t->stage_val[i];
         return (cell_type)t->stage_type[i];
     }
@@ -369,7 +367,8 @@ static int ready_stage(table *t)
 }
 
 /* Adds a row in the stage (or, with no columns, only its source row) and
- * points *type and *val at its ncols cells, which the caller fills. */
+ * points *type and *val at its first cell, which the caller fills: cell c
+ * is type[c * STAGE_ROWS]. */
 static rf_status new_row(table *t, uint32_t src_row, uint8_t **type,
                          cell_value **val, rf_error *err)
 {
@@ -381,8 +380,8 @@ static rf_status new_row(table *t, uint32_t src_row, uint8_t **type,
     t->src[t->nrows] = src_row;
     t->nrows++;
     if (t->ncols > 0) {
-        *type = t->stage_type + t->nstaged * t->ncols;
-        *val = t->stage_val + t->nstaged * t->ncols;
+        *type = t->stage_type + t->nstaged;
+        *val = t->stage_val + t->nstaged;
         t->nstaged++;
     }
     return RF_OK;
@@ -396,8 +395,8 @@ rf_status table_append_row(table *t, uint32_t src_row, rf_error *err)
     if (s != RF_OK)
         return s;
     for (size_t c = 0; c < t->ncols; c++) {
-        type[c] = CELL_BLANK;
-        val[c].num = 0.0;
+        type[c * STAGE_ROWS] = CELL_BLANK;
+        val[c * STAGE_ROWS].num = 0.0;
     }
     return RF_OK;
 }
@@ -410,7 +409,7 @@ static void put_cell(table *t, size_t col, cell_type type, cell_value v)
     uint8_t *slot_type = &c->type[r];
     cell_value *slot_val = &c->val[r];
     if (t->nstaged > 0) {  /* then the last row is staged */
-        size_t i = (t->nstaged - 1) * t->stage_cols + col;
+        size_t i = col * STAGE_ROWS + (t->nstaged - 1);
         slot_type = &t->stage_type[i];
         slot_val = &t->stage_val[i];
     }
@@ -542,14 +541,14 @@ rf_status table_append_cells(table *t, uint32_t src_row,
                           "one of the table's", (int)k);
             goto blank_rest;
         }
-        type[c] = (uint8_t)k;
-        val[c] = v;
+        type[c * STAGE_ROWS] = (uint8_t)k;
+        val[c * STAGE_ROWS] = v;
         col->count[k]++;  /* count[CELL_BLANK] is not read */
     }
 blank_rest:
     for (; c < nc; c++) {
-        type[c] = CELL_BLANK;
-        val[c].num = 0.0;
+        type[c * STAGE_ROWS] = CELL_BLANK;
+        val[c * STAGE_ROWS].num = 0.0;
     }
     return s;
 }

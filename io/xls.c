@@ -65,6 +65,7 @@
 #define REC_TABLE 0x0236u
 #define REC_SHRFMLA 0x04BCu
 #define REC_DATEMODE 0x0022u
+#define REC_SST 0x00FCu
 
 /* BIFF cells stop at 65,536 rows and 256 columns; the longest cell text
  * is 32,767 characters ([MS-XLS] 2.5.293 XLUnicodeString). */
@@ -942,10 +943,149 @@ static int records_fit(const unsigned char *b, size_t len)
     return 1;
 }
 
+/* 1 when the text of a record lies inside it: cch characters, counted at
+ * p (2 bytes, or 1 when short), then in BIFF8 a flags byte (bit 0: two
+ * bytes a character), [MS-XLS] 2.5.293-2.5.294. */
+static int text_fits(const unsigned char *p, const unsigned char *end,
+                     int biff8, int short_count)
+{
+    size_t head = short_count ? 1 : 2;
+    if ((size_t)(end - p) < head + (biff8 ? 1u : 0u))
+        return 0;
+    size_t cch = short_count ? p[0] : u16(p);
+    size_t unit = biff8 && (p[head] & 1) ? 2 : 1;
+    return cch * unit <= (size_t)(end - p) - head - (biff8 ? 1u : 0u);
+}
+
+/* FreeXL 1.0.6 copies the text of FORMAT, BOUNDSHEET and LABEL records by
+ * the stated character count, past the record (a heap over-read found by
+ * tests/fuzz/fuzz_xls.c). Returns 1 when every such text fits. Call after
+ * records_fit. */
+static int texts_fit(const unsigned char *b, size_t len, int biff8)
+{
+    size_t at = 0;
+    while (len - at >= 4) {
+        uint16_t type = u16(b + at), n = u16(b + at + 2);
+        const unsigned char *p = b + at + 4, *end = p + n;
+        at += 4u + n;
+        int ok = 1;
+        if (type == REC_FORMAT)
+            ok = n >= 2 && text_fits(p + 2, end, biff8, !biff8);
+        else if (type == REC_BOUNDSHEET)
+            ok = n >= 6 && text_fits(p + 6, end, biff8, 1);
+        else if (type == 0x0204u)  /* LABEL */
+            ok = n >= 6 && text_fits(p + 6, end, biff8, 0);
+        if (!ok)
+            return 0;
+    }
+    return 1;
+}
+
+/* A reader over an SST record and the CONTINUE records after it: `at` is
+ * the next byte, `end` the end of the current record's body. */
+typedef struct sst_cur {
+    const unsigned char *b;
+    size_t len, at, end;
+} sst_cur;
+
+/* Moves to the body of the next record when the current one is used up;
+ * 0 when that record is not a CONTINUE (the string runs past its SST). */
+static int sst_next(sst_cur *c)
+{
+    while (c->at == c->end) {
+        if (c->len - c->end < 4 || u16(c->b + c->end) != REC_CONTINUE)
+            return 0;
+        c->at = c->end + 4;
+        c->end = c->at + u16(c->b + c->end + 2);
+    }
+    return 1;
+}
+
+/* Reads (out non-NULL) or skips n bytes that may span record boundaries
+ * with nothing between them: a string's header, its formatting runs and
+ * its extended data. */
+static int sst_take(sst_cur *c, unsigned char *out, size_t n)
+{
+    while (n > 0) {
+        if (!sst_next(c))
+            return 0;
+        size_t k = c->end - c->at < n ? c->end - c->at : n;
+        if (out) {
+            memcpy(out, c->b + c->at, k);
+            out += k;
+        }
+        c->at += k;
+        n -= k;
+    }
+    return 1;
+}
+
+/* FreeXL 1.0.6 reads a shared string by its declared character count,
+ * runs and extended size without checking them against the record: past
+ * the heap buffer on a crafted file (found by tests/fuzz/fuzz_xls.c,
+ * tests/fuzz/crashes-xls/freexl-open-overread.xls). So every string of
+ * every SST is walked first. Layout from [MS-XLS] 2.4.265 SST (cstTotal
+ * and cstUnique, 4 bytes each, then cstUnique strings), 2.5.293
+ * XLUnicodeRichExtendedString (cch 2 bytes; flags 1 byte: fHighByte 0x01,
+ * fExtSt 0x04, fRichSt 0x08; cRun 2 bytes if rich; cbExtRst 4 bytes if
+ * ext; the characters; 4 bytes a run; the ext data) and 2.4.58 Continue
+ * (character data that goes on in the next record starts there with a new
+ * flags byte; the other parts just go on); section numbers from memory.
+ * Returns 1 when every string fits. Call after records_fit. */
+static int sst_fits(const unsigned char *b, size_t len)
+{
+    size_t at = 0;
+    while (len - at >= 4) {
+        uint16_t type = u16(b + at), n = u16(b + at + 2);
+        sst_cur c = {b, len, at + 4, at + 4 + n};
+        at += 4u + n;
+        if (type != REC_SST)
+            continue;
+        unsigned char h[8];
+        if (!sst_take(&c, h, 8))
+            return 0;
+        /* each string takes 3 bytes at least, so a huge count ends soon */
+        for (uint32_t left = u32(h + 4); left > 0; left--) {
+            unsigned char sh[3], x[4];
+            if (!sst_take(&c, sh, 3))
+                return 0;
+            size_t cch = u16(sh), runs = 0, ext = 0;
+            if (sh[2] & 0x08) {
+                if (!sst_take(&c, x, 2))
+                    return 0;
+                runs = u16(x);
+            }
+            if (sh[2] & 0x04) {
+                if (!sst_take(&c, x, 4))
+                    return 0;
+                ext = u32(x);
+            }
+            size_t unit = sh[2] & 0x01 ? 2 : 1;
+            while (cch > 0) {
+                if (c.at == c.end) {  /* goes on after a new flags byte */
+                    if (!sst_next(&c))
+                        return 0;
+                    unit = c.b[c.at++] & 0x01 ? 2 : 1;
+                    continue;
+                }
+                size_t room = (c.end - c.at) / unit;
+                if (room == 0)
+                    return 0;  /* half a character before the record end */
+                size_t k = room < cch ? room : cch;
+                c.at += k * unit;
+                cch -= k;
+            }
+            if (!sst_take(&c, NULL, runs * 4) || !sst_take(&c, NULL, ext))
+                return 0;
+        }
+    }
+    return 1;
+}
+
 /* Opens the compound file, checks what FreeXL cannot be trusted with
- * (names longer than their field, records past the stream's end, cells
- * outside their sheet's size), and reads the workbook stream ("Workbook" in BIFF8, "Book" in BIFF5) and its
- * globals into s. *stream is the caller's to free, also on error. */
+ * (names longer than their field, records or texts past their end, cells
+ * outside their sheet's size), and reads the workbook stream ("Workbook"
+ * in BIFF8, "Book" in BIFF5) and its globals into s. *stream is the caller's to free, also on error. */
 static rf_status scan_open(const char *path, const char *name, scan *s,
                            unsigned char **stream, size_t *len, rf_error *err)
 {
@@ -1003,14 +1143,18 @@ static rf_status scan_open(const char *path, const char *name, scan *s,
     if (g < 0)
         return error_set(err, RF_EINPUT, name,
                          "the .xls file is damaged: its workbook stream does "
-                         "not start like an Excel 5 or 97-2003 workbook");
+                         "not start like a BIFF5 or BIFF8 (.xls) workbook");
     if (s->filepass)
         return error_set(err, RF_EINPUT, name, XLS_PASSWORD_MESSAGE);
-    if (!records_fit(*stream, *len))
+    if (!records_fit(*stream, *len) || !texts_fit(*stream, *len, s->biff8))
         return error_set(err, RF_EINPUT, name,
                          "the .xls file is damaged or truncated: a record "
-                         "runs past the end of the workbook; open it and "
-                         "save it again, or as .xlsx");
+                         "or its text runs past its end; open it and save "
+                         "it again, or as .xlsx");
+    if (!sst_fits(*stream, *len))
+        return error_set(err, RF_EINPUT, name,
+                         "damaged .xls: a shared string runs past its "
+                         "record; save the file again or as .xlsx");
     for (size_t i = 0; i < s->nsheets; i++)
         if (s->sheets[i].pos < *len
             && !cells_fit(s, *stream, *len, s->sheets[i].pos))

@@ -1,5 +1,5 @@
 /*
- * xls.h: the .xls reader (Excel 97-2003 BIFF8, and BIFF5, inside a compound
+ * xls.h: the .xls reader (BIFF8, the 1997-2003 format, and BIFF5, in a compound
  * file), over FreeXL 1.0.6 for the cells it reads well, plus a small bounded
  * scan of the workbook stream for what FreeXL drops: formula results,
  * yes-no and error cells, and exact date serials. Hands cells to a grid;

@@ -11,10 +11,11 @@
  * calloc, realloc, strdup, strndup and free, so every reference to them in
  * our own objects (io/, engine/ and this file) goes to the __wrap_
  * functions below (the __wrap_/__real_ names are the linker's convention).
- * Libraries (GSL, libxlsxwriter, expat, zlib, libc's own fopen) call malloc
- * through their own PLT and are NOT affected: that is what we want, since
- * their out-of-memory behaviour is theirs to test; we test that our code
- * handles every failure of its own allocations. The Makefile rule:
+ * Libraries (GSL, libxlsxwriter, FreeXL, minizip, expat, zlib, libc's own
+ * fopen) call malloc through their own PLT and are NOT affected: that is
+ * what we want, since their out-of-memory behaviour is theirs to test; we
+ * test that our code handles every failure of its own allocations. The
+ * Makefile rule:
  *
  *   OOM_WRAP := -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc,
  *               --wrap=strdup,--wrap=strndup,--wrap=free    (on one line)
@@ -46,9 +47,13 @@
 #include "../engine/formula.h"
 #include "../engine/job.h"
 #include "../engine/linear.h"
+#include "../engine/peek.h"
 #include "../engine/run.h"
 #include "../io/csv.h"
+#include "../io/grid.h"
+#include "../io/reader.h"
 #include "../io/table.h"
+#include "../io/xls.h"
 
 #define N(a) (sizeof(a) / sizeof((a)[0]))
 
@@ -794,6 +799,410 @@ static void test_oom_run_job_reports_every_failure(void **state)
     assert_true(oom_sweep("run_job", run_run, &c) > 0);
 }
 
+/* ------------------------------------------------------------ grid */
+
+/* A small sheet given cell by cell as a reader gives it: a title row above
+ * the header (row 2), more header cells than the first capacity (16), a
+ * header cell of each kind (number, date, yes-no, text with blanks round
+ * it), a blank header cell over data (a late column, with its warning), a
+ * data cell far right (past the first column map, also late), every cell
+ * kind in the data, a blank row (invented names and values). */
+#define GRID_NAMED 18          /* header cells that name a column */
+#define GRID_FAR_COL 40        /* a late column past the first map */
+
+static rf_status grid_cells(grid *g, rf_error *err)
+{
+    rf_status st;
+    char name[16];
+    if ((st = grid_text(g, 1, 0, "Closed sales, Oakmere", 21, err)))
+        return st;
+    /* the header: col 0 number, 1 date, 2 yes-no, 3.. text; col
+     * GRID_NAMED is blank (empty text) */
+    if ((st = grid_number(g, 2, 0, 2025, err))
+        || (st = grid_date(g, 2, 1, table_date_serial(2025, 3, 14), err))
+        || (st = grid_bool(g, 2, 2, 1, err)))
+        return st;
+    for (uint32_t c = 3; c < GRID_NAMED; c++) {
+        int k = snprintf(name, sizeof name, " lot %u ", (unsigned)c);
+        if ((st = grid_text(g, 2, c, name, (size_t)k, err)))
+            return st;
+    }
+    if ((st = grid_text(g, 2, GRID_NAMED, "", 0, err)))
+        return st;
+    /* data rows 3 and 5 (row 4 is blank) */
+    for (uint32_t r = 3; r <= 5; r += 2) {
+        if ((st = grid_number(g, r, 0, 84.5 * r, err))
+            || (st = grid_date(g, r, 1, 45000 + r, err))
+            || (st = grid_bool(g, r, 2, (int)(r % 2), err))
+            || (st = grid_text(g, r, 3, "Fennick", 7, err))
+            || (st = grid_error(g, r, 4, "#N/A", 4, err)))
+            return st;
+        for (uint32_t c = 5; c < GRID_NAMED; c++)
+            if ((st = grid_number(g, r, c, c * 1.5, err)))
+                return st;
+        if ((st = grid_text(g, r, GRID_NAMED, "no header", 9, err))
+            || (st = grid_number(g, r, GRID_FAR_COL, 2.385, err)))
+            return st;
+    }
+    return RF_OK;
+}
+
+static rf_status run_grid(void *ctx, rf_error *err)
+{
+    (void)ctx;
+    table *t = NULL;
+    rf_warnings w = {0};
+    rf_status st = RF_OK;
+    uint32_t rows = 0, cols = 0;
+    grid *g = grid_create("sales.xlsx", "Closed", 2);
+    if (g == NULL)
+        st = error_nomem(err, "grid_create");
+    if (st == RF_OK)
+        st = grid_cells(g, err);
+    if (st == RF_OK) {
+        grid_used(g, &rows, &cols);
+        st = grid_finish(g, &t, &w, err);
+    }
+    oom_disarm();
+    oom_warnings(&w);
+    if (st != RF_OK) {
+        assert_null(t);
+    } else {
+        assert_int_equal(rows, 5);
+        assert_int_equal(cols, GRID_FAR_COL + 1);
+        assert_int_equal(table_cols(t), GRID_NAMED + 2);
+        assert_int_equal(table_rows(t), 2);
+        assert_string_equal(table_column_name(t, 0), "2025");
+        assert_string_equal(table_column_name(t, 1), "2025-03-14");
+        assert_string_equal(table_column_name(t, 2), "TRUE");
+        assert_string_equal(table_column_name(t, 3), "lot 3");
+        assert_string_equal(table_column_name(t, GRID_NAMED), "column S");
+        assert_string_equal(table_column_name(t, GRID_NAMED + 1),
+                            "column AO");
+        assert_int_equal(w.n + w.dropped, 2);
+    }
+    table_free(t);
+    grid_free(g);
+    error_warnings_clear(&w);
+    return st;
+}
+
+static void test_oom_grid_reports_every_failure(void **state)
+{
+    (void)state;
+    assert_true(oom_sweep("grid", run_grid, NULL) > 0);
+}
+
+/* ------------------------------------------------------------ reader */
+
+/* The committed fixtures (tests/data/README.md says how each was made).
+ * A completed read is checked against the fixture's CSV twin, read with
+ * csv_read before the sweep: same shape and column names. */
+#define DATA "tests/data/"
+
+typedef struct read_ctx {
+    const char *path, *name, *sheet, *twin;
+    uint32_t header;
+    table *ref;   /* the twin */
+} read_ctx;
+
+static rf_status run_reader_read(void *ctx, rf_error *err)
+{
+    read_ctx *c = ctx;
+    reader_options o = { c->sheet, c->header, 0 };
+    table *t = NULL;
+    rf_warnings w = {0};
+    rf_status st = reader_read(c->path, c->name, &o, &t, &w, err);
+    oom_disarm();
+    oom_warnings(&w);
+    if (st != RF_OK) {
+        assert_null(t);
+    } else {
+        assert_int_equal(table_rows(t), table_rows(c->ref));
+        assert_int_equal(table_cols(t), table_cols(c->ref));
+        for (size_t j = 0; j < table_cols(t); j++)
+            assert_string_equal(table_column_name(t, j),
+                                table_column_name(c->ref, j));
+    }
+    table_free(t);
+    error_warnings_clear(&w);
+    return st;
+}
+
+static void sweep_reader_read(const char *label, read_ctx *c)
+{
+    rf_warnings w = {0};
+    rf_error e = {0};
+    csv_options co = { ',', 0 };
+    if (csv_read(c->twin, "twin.csv", &co, &c->ref, &w, &e) != RF_OK)
+        fail_msg("%s: %s: %s", c->twin, e.where, e.message);
+    error_warnings_clear(&w);
+    long points = oom_sweep(label, run_reader_read, c);
+    table_free(c->ref);
+    assert_true(points > 0);
+}
+
+static void test_oom_reader_read_xlsx(void **state)
+{
+    (void)state;
+    /* dates, datetimes, booleans, error cells, blanks */
+    read_ctx c = { DATA "xlsx-types.xlsx", "types.xlsx", "Sales",
+                   DATA "xlsx-types-Sales.csv", 0, NULL };
+    sweep_reader_read("reader_read xlsx-types.xlsx[Sales]", &c);
+}
+
+static void test_oom_reader_read_xlsx_header_row(void **state)
+{
+    (void)state;
+    /* a title row, the header in row 4, non-ASCII names, sparse cells, a
+     * blank row inside the data */
+    read_ctx c = { DATA "xlsx-types.xlsx", "types.xlsx", "Größe €",
+                   DATA "xlsx-types-Groesse.csv", 4, NULL };
+    sweep_reader_read("reader_read xlsx-types.xlsx[Größe €]", &c);
+}
+
+static void test_oom_reader_read_ods(void **state)
+{
+    (void)state;
+    /* every value type, text:s runs, two paragraphs, error formulas and
+     * the million repeated blank rows LibreOffice writes; the name says
+     * .xlsx, so the detection's warning is allocated too */
+    read_ctx c = { DATA "ods-types.ods", "types.xlsx", NULL,
+                   DATA "ods-types.csv", 0, NULL };
+    sweep_reader_read("reader_read ods-types.ods", &c);
+}
+
+/* reader_detect once asked xls_is_encrypted_ooxml, whose int answer
+ * could not say "no memory"; detection now leaves that to the .xls reader,
+ * which reports it, so every failure here must be reported. */
+static void test_oom_reader_read_xls(void **state)
+{
+    (void)state;
+    /* numbers, non-ASCII text, dates, times, booleans, errors, formulas
+     * of each result type; FreeXL's own allocations are not injected */
+    read_ctx c = { DATA "xls-types.xls", "types.xls", NULL,
+                   DATA "xls-types-Types.csv", 0, NULL };
+    sweep_reader_read("reader_read xls-types.xls", &c);
+}
+
+typedef struct sheets_ctx {
+    const char *path, *name;
+    reader_format fmt;
+    grid_sheet *ref;   /* from a run with nothing injected */
+    size_t nref;
+} sheets_ctx;
+
+static rf_status run_reader_sheets(void *ctx, rf_error *err)
+{
+    sheets_ctx *c = ctx;
+    grid_sheet *s = NULL;
+    size_t n = 0;
+    reader_format fmt = FORMAT_CSV;
+    rf_warnings w = {0};
+    rf_status st = reader_sheets(c->path, c->name, &fmt, &s, &n, &w, err);
+    oom_disarm();
+    oom_warnings(&w);
+    if (st != RF_OK) {
+        assert_null(s);
+    } else {
+        assert_int_equal(fmt, c->fmt);
+        assert_int_equal(n, c->nref);
+        for (size_t i = 0; i < n; i++) {
+            assert_string_equal(s[i].name, c->ref[i].name);
+            assert_int_equal(s[i].rows, c->ref[i].rows);
+            assert_int_equal(s[i].cols, c->ref[i].cols);
+        }
+    }
+    grid_sheets_free(s, n);
+    error_warnings_clear(&w);
+    return st;
+}
+
+static void sweep_reader_sheets(const char *label, sheets_ctx *c,
+                                size_t nsheets, const char *a_name)
+{
+    rf_warnings w = {0};
+    rf_error e = {0};
+    reader_format fmt;
+    if (reader_sheets(c->path, c->name, &fmt, &c->ref, &c->nref, &w, &e)
+        != RF_OK)
+        fail_msg("%s: %s: %s", c->path, e.where, e.message);
+    error_warnings_clear(&w);
+    assert_int_equal(fmt, c->fmt);
+    assert_int_equal(c->nref, nsheets);
+    int found = 0;
+    for (size_t i = 0; i < c->nref; i++) {
+        found |= strcmp(c->ref[i].name, a_name) == 0;
+        assert_true(c->ref[i].rows > 0 && c->ref[i].cols > 0);
+    }
+    assert_true(found);
+    long points = oom_sweep(label, run_reader_sheets, c);
+    grid_sheets_free(c->ref, c->nref);
+    assert_true(points > 0);
+}
+
+static void test_oom_reader_sheets_xlsx(void **state)
+{
+    (void)state;
+    sheets_ctx c = { DATA "xlsx-types.xlsx", "types.xlsx", FORMAT_XLSX,
+                     NULL, 0 };
+    sweep_reader_sheets("reader_sheets xlsx-types.xlsx", &c, 2, "Größe €");
+}
+
+static void test_oom_reader_sheets_ods(void **state)
+{
+    (void)state;
+    sheets_ctx c = { DATA "ods-sheets.ods", "sheets.ods", FORMAT_ODS, NULL,
+                     0 };
+    sweep_reader_sheets("reader_sheets ods-sheets.ods", &c, 3,
+                        "Ventes détaillées");
+}
+
+static void test_oom_reader_sheets_xls(void **state)
+{
+    (void)state;
+    sheets_ctx c = { DATA "xls-sheets.xls", "sheets.xls", FORMAT_XLS, NULL,
+                     0 };
+    sweep_reader_sheets("reader_sheets xls-sheets.xls", &c, 3,
+                        "Größe ÄÖÜ");
+}
+
+/* The .xls reader without reader_detect in front (see the bug above). */
+static rf_status run_xls_read(void *ctx, rf_error *err)
+{
+    read_ctx *c = ctx;
+    table *t = NULL;
+    rf_warnings w = {0};
+    rf_status st = xls_read(c->path, c->name, c->sheet, c->header, &t, &w,
+                            err);
+    oom_disarm();
+    oom_warnings(&w);
+    if (st != RF_OK) {
+        assert_null(t);
+    } else {
+        assert_int_equal(table_rows(t), table_rows(c->ref));
+        assert_int_equal(table_cols(t), table_cols(c->ref));
+        for (size_t j = 0; j < table_cols(t); j++)
+            assert_string_equal(table_column_name(t, j),
+                                table_column_name(c->ref, j));
+    }
+    table_free(t);
+    error_warnings_clear(&w);
+    return st;
+}
+
+static void test_oom_xls_read(void **state)
+{
+    (void)state;
+    read_ctx c = { DATA "xls-types.xls", "types.xls", NULL,
+                   DATA "xls-types-Types.csv", 0, NULL };
+    rf_warnings w = {0};
+    rf_error e = {0};
+    csv_options co = { ',', 0 };
+    if (csv_read(c.twin, "twin.csv", &co, &c.ref, &w, &e) != RF_OK)
+        fail_msg("%s: %s: %s", c.twin, e.where, e.message);
+    error_warnings_clear(&w);
+    long points = oom_sweep("xls_read xls-types.xls", run_xls_read, &c);
+    table_free(c.ref);
+    assert_true(points > 0);
+}
+
+static rf_status run_xls_sheets(void *ctx, rf_error *err)
+{
+    sheets_ctx *c = ctx;
+    grid_sheet *s = NULL;
+    size_t n = 0;
+    rf_status st = xls_sheets(c->path, c->name, &s, &n, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(s);
+    } else {
+        assert_int_equal(n, c->nref);
+        for (size_t i = 0; i < n; i++) {
+            assert_string_equal(s[i].name, c->ref[i].name);
+            assert_int_equal(s[i].rows, c->ref[i].rows);
+            assert_int_equal(s[i].cols, c->ref[i].cols);
+        }
+    }
+    grid_sheets_free(s, n);
+    return st;
+}
+
+static void test_oom_xls_sheets(void **state)
+{
+    (void)state;
+    sheets_ctx c = { DATA "xls-sheets.xls", "sheets.xls", FORMAT_XLS, NULL,
+                     0 };
+    rf_error e = {0};
+    if (xls_sheets(c.path, c.name, &c.ref, &c.nref, &e) != RF_OK)
+        fail_msg("%s: %s: %s", c.path, e.where, e.message);
+    assert_int_equal(c.nref, 3);
+    long points = oom_sweep("xls_sheets xls-sheets.xls", run_xls_sheets,
+                            &c);
+    grid_sheets_free(c.ref, c.nref);
+    assert_true(points > 0);
+}
+
+/* ------------------------------------------------------------ peek */
+
+typedef struct peek_ctx {
+    const char *path, *name, *sheet;
+    char *ref;   /* from a run with nothing injected */
+} peek_ctx;
+
+static rf_status run_peek(void *ctx, rf_error *err)
+{
+    peek_ctx *c = ctx;
+    char *s = NULL;
+    rf_warnings w = {0};
+    rf_status st = peek_text(c->path, c->name, c->sheet, &s, &w, err);
+    oom_disarm();
+    oom_warnings(&w);
+    if (st != RF_OK)
+        assert_null(s);
+    else
+        assert_string_equal(s, c->ref);
+    free(s);
+    error_warnings_clear(&w);
+    return st;
+}
+
+static void sweep_peek(const char *label, peek_ctx *c, const char *expect)
+{
+    rf_warnings w = {0};
+    rf_error e = {0};
+    if (peek_text(c->path, c->name, c->sheet, &c->ref, &w, &e) != RF_OK)
+        fail_msg("%s: %s: %s", c->path, e.where, e.message);
+    error_warnings_clear(&w);
+    if (strstr(c->ref, expect) == NULL)
+        fail_msg("%s: no '%s' in:\n%s", label, expect, c->ref);
+    long points = oom_sweep(label, run_peek, c);
+    free(c->ref);
+    assert_true(points > 0);
+}
+
+static void test_oom_peek_workbook_sheets(void **state)
+{
+    (void)state;
+    peek_ctx c = { DATA "xlsx-types.xlsx", "types.xlsx", NULL, NULL };
+    sweep_peek("peek_text xlsx-types.xlsx", &c, "Größe €");
+}
+
+static void test_oom_peek_workbook_sheet_columns(void **state)
+{
+    (void)state;
+    peek_ctx c = { DATA "ods-sheets.ods", "sheets.ods", "Année 2025",
+                   NULL };
+    sweep_peek("peek_text ods-sheets.ods[Année 2025]", &c, "surface m²");
+}
+
+static void test_oom_peek_csv(void **state)
+{
+    peek_ctx c = { NULL, "sales.csv", NULL, NULL };
+    c.path = folder_write(*state, "sales.csv", csv_text);
+    sweep_peek("peek_text sales.csv", &c, "living area");
+}
+
 int main(void)
 {
     /* as main() does: GSL reports, never aborts */
@@ -815,6 +1224,20 @@ int main(void)
         cmocka_unit_test_setup_teardown(
             test_oom_run_job_reports_every_failure, folder_setup,
             folder_teardown),
+        cmocka_unit_test(test_oom_grid_reports_every_failure),
+        cmocka_unit_test(test_oom_reader_read_xlsx),
+        cmocka_unit_test(test_oom_reader_read_xlsx_header_row),
+        cmocka_unit_test(test_oom_reader_read_ods),
+        cmocka_unit_test(test_oom_reader_read_xls),
+        cmocka_unit_test(test_oom_reader_sheets_xlsx),
+        cmocka_unit_test(test_oom_reader_sheets_ods),
+        cmocka_unit_test(test_oom_reader_sheets_xls),
+        cmocka_unit_test(test_oom_xls_read),
+        cmocka_unit_test(test_oom_xls_sheets),
+        cmocka_unit_test(test_oom_peek_workbook_sheets),
+        cmocka_unit_test(test_oom_peek_workbook_sheet_columns),
+        cmocka_unit_test_setup_teardown(test_oom_peek_csv, folder_setup,
+                                        folder_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -453,7 +453,26 @@ static void test_xls_record_past_stream_end_is_refused(void **state)
     assert_int_equal(read_fail(f, "tests/fuzz/crashes-xls/"
                                   "freexl-record-past-end.xls"),
                      RF_EINPUT);
-    assert_non_null(strstr(f->err.message, "runs past the end"));
+    assert_non_null(strstr(f->err.message, "runs past its end"));
+    /* a number format's text longer than its record */
+    assert_int_equal(read_fail(f, "tests/fuzz/crashes-xls/"
+                                  "freexl-format-string-too-long.xls"),
+                     RF_EINPUT);
+    assert_non_null(strstr(f->err.message, "runs past its end"));
+}
+
+static void test_xls_shared_string_past_record_is_refused(void **state)
+{
+    fx *f = *state;
+    /* Found by tests/fuzz/fuzz_xls.c: FreeXL 1.0.6 reads a shared string
+     * by its declared character count, past the heap buffer, when the
+     * string is longer than its SST record. */
+    assert_int_equal(read_fail(f, "tests/fuzz/crashes-xls/"
+                                  "freexl-open-overread.xls"),
+                     RF_EINPUT);
+    assert_string_equal(f->err.message,
+                        "damaged .xls: a shared string runs past its "
+                        "record; save the file again or as .xlsx");
 }
 
 /* Every prefix of a good file is refused cleanly or read; none crashes. */
@@ -515,6 +534,7 @@ int main(void)
         T(test_xls_overlong_directory_name_is_refused),
         T(test_xls_cell_outside_sheet_size_is_refused),
         T(test_xls_record_past_stream_end_is_refused),
+        T(test_xls_shared_string_past_record_is_refused),
         T(test_xls_every_truncation_fails_cleanly),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
