@@ -16,7 +16,8 @@
  * BIFF record reader, bounded at every step against crafted input: record
  * layouts from [MS-CFB] (compound file) and [MS-XLS] (BIFF8 records:
  * FORMULA 2.4.127, STRING 2.4.268, BOOLERR 2.4.24, RK 2.5.217, BErr
- * 2.5.97, FORMAT 2.4.126, XF 2.4.353, BoundSheet8 2.4.28).
+ * 2.5.97, FORMAT 2.4.126, XF 2.4.353, BoundSheet8 2.4.28, SST 2.4.265 and
+ * XLUnicodeRichExtendedString 2.5.293, the last two from memory).
  * Not here: header rules (grid.c), other formats.
  */
 #include "xls.h"
@@ -1083,9 +1084,10 @@ static int sst_fits(const unsigned char *b, size_t len)
 }
 
 /* Opens the compound file, checks what FreeXL cannot be trusted with
- * (names longer than their field, records or texts past their end, cells
- * outside their sheet's size), and reads the workbook stream ("Workbook"
- * in BIFF8, "Book" in BIFF5) and its globals into s. *stream is the caller's to free, also on error. */
+ * (names longer than their field, records, texts or shared strings past
+ * their end, cells outside their sheet's size), and reads the workbook
+ * stream ("Workbook" in BIFF8, "Book" in BIFF5) and its globals into s.
+ * *stream is the caller's to free, also on error. */
 static rf_status scan_open(const char *path, const char *name, scan *s,
                            unsigned char **stream, size_t *len, rf_error *err)
 {
