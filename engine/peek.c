@@ -70,6 +70,16 @@ static void add_padded(text *t, const char *s, size_t w)
         add(t, " ");
 }
 
+/* File text reaches the terminal: control characters (a line break in a
+ * header, an escape sequence) become '?', so they can neither break the
+ * layout nor drive the terminal. */
+static void tame(char *s)
+{
+    for (unsigned char *p = (unsigned char *)s; *p; p++)
+        if (*p < 0x20 || *p == 0x7F)
+            *p = '?';
+}
+
 /* s cut to at most n bytes on a character boundary, with "..." if cut. */
 static void cut(const char *s, char *buf, size_t n)
 {
@@ -83,10 +93,7 @@ static void cut(const char *s, char *buf, size_t n)
         memcpy(buf, s, k);
         memcpy(buf + k, "...", 4);
     }
-    /* a line break or tab inside a cell would break the layout */
-    for (char *p = buf; *p; p++)
-        if (*p == '\n' || *p == '\r' || *p == '\t')
-            *p = ' ';
+    tame(buf);
 }
 
 static void columns(text *out, const table *t, const char *title)
@@ -101,9 +108,13 @@ static void columns(text *out, const table *t, const char *title)
     add(out, "  ");
     add_padded(out, "column", wname + 2);
     add(out, "%-8s %7s  %s\n", "kind", "blanks", "first values");
+    size_t unnamed = 0;
     for (size_t c = 0; c < nc; c++) {
+        char name[256];
+        cut(table_column_name(t, c), name, sizeof name);
+        unnamed += strncmp(name, "column ", 7) == 0;
         add(out, "  ");
-        add_padded(out, table_column_name(t, c), wname + 2);
+        add_padded(out, name, wname + 2);
         add(out, "%-8s %7zu  ", table_kind_name(table_column_kind(t, c)),
             table_column_blanks(t, c));
         size_t shown = 0;
@@ -118,6 +129,10 @@ static void columns(text *out, const table *t, const char *title)
         }
         add(out, "\n");
     }
+    if (unnamed > 0 && unnamed + 1 >= nc)
+        add(out, "Most columns have no name in the header row. If the names "
+                 "are on a later row (a title above the table?), give that "
+                 "row in the job: data FILE header N.\n");
 }
 
 rf_status peek_text(const char *path, const char *name, const char *sheet,
@@ -143,8 +158,10 @@ rf_status peek_text(const char *path, const char *name, const char *sheet,
             add_padded(&t, "sheet", w + 2);
             add(&t, "%8s %8s\n", "rows", "columns");
             for (size_t i = 0; i < n; i++) {
+                char sn[256];
+                cut(sheets[i].name, sn, sizeof sn);
                 add(&t, "  %3zu  ", i + 1);
-                add_padded(&t, sheets[i].name, w + 2);
+                add_padded(&t, sn, w + 2);
                 add(&t, "%8lu %8lu\n", (unsigned long)sheets[i].rows,
                     (unsigned long)sheets[i].cols);
             }
@@ -159,9 +176,10 @@ rf_status peek_text(const char *path, const char *name, const char *sheet,
         return st;
     char title[600];
     if (table_sheet(tb))
-        snprintf(title, sizeof title, "%s[%s]", name, table_sheet(tb));
+        snprintf(title, sizeof title, "%.280s[%.280s]", name, table_sheet(tb));
     else
-        snprintf(title, sizeof title, "%s", name);
+        snprintf(title, sizeof title, "%.500s", name);
+    tame(title);
     columns(&t, tb, title);
     table_free(tb);
 done:

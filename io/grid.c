@@ -191,8 +191,12 @@ static rf_status cell(grid *g, uint32_t row, uint32_t col, cell_type type,
     g->any = 1;
     g->row = row;
     g->col = col;
-    if ((type == CELL_TEXT || type == CELL_ERROR) && len == 0)
-        return RF_OK;   /* empty text is blank */
+    if (type == CELL_TEXT || type == CELL_ERROR) {
+        size_t n = len;
+        table_trim_span(s, &n);
+        if (n == 0)
+            return RF_OK;   /* empty or only spaces: blank, as in CSV */
+    }
     if (row > g->used_rows)
         g->used_rows = row;
     if (col + 1 > g->used_cols)
@@ -227,6 +231,12 @@ static rf_status cell(grid *g, uint32_t row, uint32_t col, cell_type type,
             g->h[g->nh].col = col;
             g->h[g->nh++].name = name;
             return RF_OK;
+        }
+        if (g->nh == 0) {   /* the named header row is blank */
+            snprintf(where, sizeof where, "%s[%s]", g->file, g->sheet);
+            return error_set(err, RF_EINPUT, where,
+                             "no header on row %lu: the row is blank",
+                             (unsigned long)g->header);
         }
         if ((st = make_columns(g, err)))
             return st;

@@ -31,8 +31,8 @@ void grid_free(grid *g);  /* accepts NULL */
 
 /* Cells, in row-major order: row is the 1-based row the sheet shows, col
  * the 0-based column (0 = A). Rows may be skipped (they are blank); within
- * a row, columns increase. A blank cell need not be given. Text of length
- * 0 is blank. Errors: RF_EINPUT for a cell beyond the format limits or out
+ * a row, columns increase. A blank cell need not be given. Text that is
+ * empty or only spaces and tabs is blank. Errors: RF_EINPUT for a cell beyond the format limits or out
  * of order; RF_ENOMEM. */
 rf_status grid_number(grid *g, uint32_t row, uint32_t col, double v,
                       rf_error *err);
@@ -66,8 +66,7 @@ void grid_sheets_free(grid_sheet *s, size_t n);  /* accepts NULL */
 
 /* Chooses the sheet `want` among names[0..n): a sheet name (exact, then
  * ignoring ASCII case), or a 1-based number; NULL means the first sheet.
- * On no match: RF_EINPUT naming file, listing the sheets, and suggesting
- * the nearest name. */
+ * On no match: RF_EINPUT naming file and listing the sheets. */
 rf_status grid_pick_sheet(const char *file, const char *want,
                           const char *const *names, size_t n, size_t *index,
                           rf_error *err);

@@ -169,6 +169,32 @@ static void test_grid_empty_sheet_or_header_past_the_end_is_an_error(void **stat
     grid_free(g);
 }
 
+/* `header 3` naming a blank row inside the sheet is the same mistake as
+ * one past its end; a cell of spaces is blank, so it cannot be the header
+ * (found in review: "   " in A1 made the real header row data). */
+static void test_grid_blank_named_header_row_and_space_cells(void **state)
+{
+    (void)state;
+    rf_error e = { 0 };
+    rf_warnings w = { 0 };
+    grid *g = grid_create("gap.xlsx", "S", 3);
+    TXT(g, 2, 0, "area");
+    assert_int_equal(grid_number(g, 4, 0, 5, &e), RF_EINPUT);
+    assert_non_null(strstr(e.message, "no header on row 3: the row is blank"));
+    grid_free(g);
+
+    g = grid_create("ws.xlsx", "S", 0);
+    TXT(g, 1, 0, "   ");
+    TXT(g, 2, 0, "area");
+    NUM(g, 3, 0, 5);
+    TXT(g, 4, 0, " \t ");      /* a data cell of spaces: blank */
+    table *t = finish_ok(g, &w);
+    assert_string_equal(table_column_name(t, 0), "area");
+    assert_int_equal(table_rows(t), 1);
+    table_free(t);
+    error_warnings_clear(&w);
+}
+
 static void test_grid_reports_the_used_size(void **state)
 {
     (void)state;
@@ -219,6 +245,7 @@ int main(void)
         cmocka_unit_test(test_grid_duplicate_headers_name_both_cells),
         cmocka_unit_test(test_grid_rejects_cells_out_of_order_or_beyond_the_sheet),
         cmocka_unit_test(test_grid_empty_sheet_or_header_past_the_end_is_an_error),
+        cmocka_unit_test(test_grid_blank_named_header_row_and_space_cells),
         cmocka_unit_test(test_grid_reports_the_used_size),
         cmocka_unit_test(test_grid_picks_sheets_by_name_case_or_number),
     };
