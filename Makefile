@@ -44,7 +44,7 @@ else
 PROG := rowfit
 endif
 
-.PHONY: all deps test-deps demo check unit bench fuzz fuzz-replay install clean
+.PHONY: all deps test-deps demo check unit bench bench-readers fuzz fuzz-replay install clean
 all: $(PROG)
 
 $(PROG): $(BUILD)/engine/main.o $(LIB_OBJ)
@@ -136,7 +136,17 @@ check: test-deps
 unit: $(TEST_BIN)
 	@for t in $(TEST_BIN); do $$t || exit 1; done
 
-bench: all
+# tests/bench_readers.c: the readers against the physical limits (inflate +
+# expat with empty handlers; reading the bytes); `make bench` runs it, then
+# the whole-job benchmark.
+$(BUILD)/bench_readers: tests/bench_readers.c $(LIB_OBJ)
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -DHAVE_XLSX -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS)
+
+bench-readers: $(BUILD)/bench_readers
+	$(BUILD)/bench_readers --rows $${ROWS:-1000000}
+
+bench: all bench-readers
 	@sh tests/bench.sh
 
 install: $(PROG)

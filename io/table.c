@@ -54,11 +54,11 @@ struct table {
     arena_block *arena;   /* newest block first */
     /* The last nstaged rows are still in the stage, STAGE_ROWS cells per
      * column for stage_cols columns, and are copied into the columns a
-     * column at a time every STAGE_ROWS rows: writing twenty arrays at once row by row is
-     * what made reading slow (the memory system follows a few streams of
-     * writes, not twenty). The setters write the last row there; adding a
-     * column or trimming flushes the stage first; the getters look there
-     * for the last rows. */
+     * column at a time every STAGE_ROWS rows: writing twenty arrays at
+     * once, row by row, is what made reading slow (the memory system
+     * follows a few streams of writes, not twenty). The setters write the
+     * last row there; adding a column or trimming flushes the stage first;
+     * the getters look there for the last rows. */
     uint8_t *stage_type;
     cell_value *stage_val;
     size_t stage_cols, nstaged;
