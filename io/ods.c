@@ -5,6 +5,10 @@
  * repeated; repeats of blank rows and cells only move the counters, so the
  * million empty rows LibreOffice writes at the end of a sheet cost nothing.
  * Not the header rules (io/grid.c) and not format detection (io/reader.c).
+ * A formula cell gives its saved result; one with none (table:formula, no
+ * office:value-type, nothing shown: a file from a program that does not
+ * calculate) is an error cell with ODS_FORMULA_UNSAVED as the reason,
+ * never silently blank.
  *
  * Reference: OpenDocument 1.2 part 1 (OASIS), 9.1.4 table:table-cell,
  * 9.1.3 table:table-row, 19.385-19.389 office:value-type and its values,
@@ -44,6 +48,15 @@
 
 #define CONTENT "content.xml"
 
+/* The reason given for a formula cell with no saved result (table:formula
+ * but no office:value-type and nothing shown): the file was written by a
+ * program that does not calculate. The same family as io/xls.c's
+ * XLS_FORMULA_UNREADABLE and io/xlsx.c's XLSX_FORMULA_UNSAVED. */
+#define ODS_FORMULA_UNSAVED \
+    "#FORMULA: this formula has no saved result (the file was written by " \
+    "a program that does not calculate); open it in a spreadsheet program " \
+    "and save it"
+
 typedef enum vtype { V_NONE, V_FLOAT, V_DATE, V_TIME, V_BOOL, V_STRING,
                      V_OTHER } vtype;
 
@@ -71,8 +84,7 @@ typedef struct ods {
     unsigned long book_depth;   /* office:spreadsheet, 0 outside */
     int seen_book;
     unsigned long skip_depth;   /* inside an ignored subtree, 0 outside */
-    int stopped;             /* zipxml_fail was called */
-    int done;                /* the wanted sheet is read */
+    int stopped;             /* zipxml_fail or zipxml_stop was called */
 
     int in_sheet;
     unsigned long sheet_depth;
@@ -459,8 +471,8 @@ static void sheet_end(ods *o)
     o->used_cols[o->nnames - 1] = o->sheet_cols;
     if (!o->measure) {
         /* The wanted sheet is read: the rest of the file is not needed. */
-        o->done = 1;
-        fail(o, RF_EINPUT, NULL, "stop");
+        o->stopped = 1;
+        zipxml_stop(o->z);
     }
 }
 
@@ -632,6 +644,11 @@ static void cell_end(ods *o)
             s = "#VALUE!";   /* an error cell that shows nothing */
             len = strlen(s);
         }
+    } else if (o->formula && o->vt == V_NONE && len == 0 && !o->has_sval) {
+        /* Never silently blank: a row of such cells would vanish. */
+        type = CELL_ERROR;
+        s = ODS_FORMULA_UNSAVED;
+        len = strlen(s);
     } else if (o->vt == V_FLOAT || o->vt == V_TIME) {
         type = CELL_NUMBER;
     } else if (o->vt == V_DATE) {
@@ -871,7 +888,7 @@ static rf_status pass(ods *o, rf_error *err)
     rf_error e;
     memset(&e, 0, sizeof e);
     rf_status st = zipxml_parse(o->z, CONTENT, &h, o, &e);
-    if (st != RF_OK && !o->done) {
+    if (st != RF_OK) {
         *err = e;
         return st;
     }
@@ -891,7 +908,7 @@ static void reset_position(ods *o)
         free(o->names[i]);
     o->nnames = 0;
     o->depth = o->book_depth = o->skip_depth = 0;
-    o->seen_book = o->stopped = o->done = 0;
+    o->seen_book = o->stopped = 0;
     o->in_sheet = o->in_row = o->in_cell = 0;
     o->repeats = 0;
 }

@@ -8,16 +8,22 @@
  *
  * Choices a user can see (docs/ should repeat them):
  * - A number cell is a date when its style's number format is a built-in
- *   date/time format (ids 14-22, 45-47; ECMA-376 Part 1 18.8.30; also the
- *   East Asian date ids 27-36 and 50-58 listed there, from memory) or a
- *   custom code with any of the letters y m d h s (either case) outside
- *   "quoted text", [brackets] and \-escapes. "m" alone is month or minute
- *   depending on its neighbours; either way it is date-ish, so it counts,
- *   and so do times and durations ([h]:mm): the value is the serial day
- *   number whatever the code shows.
+ *   date or date-time format (ids 14-17 and 22; ECMA-376 Part 1 18.8.30;
+ *   also the East Asian date ids 27-36 and 50-58 listed there, from memory)
+ *   or a custom code with a y or d token (either case) outside "quoted
+ *   text", [brackets] and \-escapes; the value is the serial day number.
+ * - A time-only format (built-in 18-21 and 45-47; a custom code with h, s
+ *   or an elapsed [h] [m] [s] but no y or d, e.g. "hh:mm", "[h]:mm:ss")
+ *   gives a plain number, the fraction of a day, as the .ods and .xls
+ *   readers do: 12:00 reads 0.5. "m" is minute beside h or s and month
+ *   otherwise, so a code of m alone ("mmm") is a date.
  * - A 1904-system workbook's serials get 1462 added, so every date is in
  *   the 1900 system (libraries.md, spreadsheet file facts).
- * - A cell without a cached value (<v>) is blank, formula or not.
+ * - A cell without a cached value (<v>) is blank, unless it holds a
+ *   formula (<f>): then it was written by a program that does not
+ *   calculate (openpyxl), and the cell is unusable with XLSX_FORMULA_UNSAVED
+ *   as the reason, never silently blank. An empty <v> counts as no value,
+ *   except on a t="str" cell, whose result may be empty text.
  * - Error cells (#N/A, #DIV/0! ...) keep their text as the reason.
  */
 #include "xlsx.h"
@@ -45,6 +51,12 @@
 #define XLSX_SHEETS_MAX 10000u
 /* Offset from a 1904-system serial to the 1900 system. */
 #define XLSX_1904_OFFSET 1462.0
+/* The reason given for a formula cell with no saved result; the same
+ * family as io/xls.c's XLS_FORMULA_UNREADABLE. */
+#define XLSX_FORMULA_UNSAVED \
+    "#FORMULA: this formula has no saved result (the file was written by " \
+    "a program that does not calculate); open it in a spreadsheet program " \
+    "and save it"
 
 typedef struct rel {
     char *id, *target, *type;  /* target resolved to a member name */
@@ -59,6 +71,7 @@ typedef struct sheet_ref {
 
 typedef struct numfmt {
     uint32_t id;
+    uint32_t seq;  /* place in the styles part: the last definition wins */
     int is_date;
 } numfmt;
 
@@ -452,43 +465,69 @@ static void XMLCALL sst_text(void *ud, const XML_Char *s, int len)
 
 /* ---- styles ----------------------------------------------------------- */
 
-/* A built-in number format id that shows a date or time (ECMA-376 Part 1
- * 18.8.30: 14-22, 45-47; 27-36 and 50-58 in East Asian locales, from
- * memory). */
+/* A built-in number format id that shows a date (ECMA-376 Part 1 18.8.30:
+ * 14-17 and 22; 27-36 and 50-58 in East Asian locales, from memory). The
+ * time-only ids 18-21 and 45-47 are not dates (see the file comment). */
 static int builtin_date(uint32_t id)
 {
-    return (id >= 14 && id <= 22) || (id >= 45 && id <= 47) ||
+    return (id >= 14 && id <= 17) || id == 22 ||
            (id >= 27 && id <= 36) || (id >= 50 && id <= 58);
 }
 
-/* A custom format code with a date or time token (see the file comment). */
+/* "h", "hh", "m", "s" ... inside [brackets]: an elapsed-time token. */
+static int elapsed_token(const char *p, const char *end)
+{
+    if (p == end)
+        return 0;
+    char ch = (char)(*p | 0x20);
+    if (ch != 'h' && ch != 'm' && ch != 's')
+        return 0;
+    for (; p < end; p++)
+        if ((char)(*p | 0x20) != ch)
+            return 0;
+    return 1;
+}
+
+/* A custom format code that shows a date (see the file comment): a y or d
+ * token, or m with no h or s beside it (a month). Time-only codes are 0. */
 static int code_is_date(const char *code)
 {
+    int yd = 0, hs = 0, m = 0;
     for (const char *p = code; *p != '\0'; p++) {
         switch (*p) {
         case '"':
             p = strchr(p + 1, '"');
             if (p == NULL)
-                return 0;
+                return yd || (m && !hs);
             break;
-        case '[':
-            p = strchr(p + 1, ']');
-            if (p == NULL)
-                return 0;
+        case '[': {
+            const char *q = strchr(p + 1, ']');
+            if (q == NULL)
+                return yd || (m && !hs);
+            if (elapsed_token(p + 1, q))
+                hs = 1;
+            p = q;
             break;
+        }
         case '\\': case '_': case '*':  /* escape, space-as-wide, fill */
             if (p[1] == '\0')
-                return 0;
+                return yd || (m && !hs);
             p++;
             break;
-        case 'y': case 'Y': case 'm': case 'M': case 'd': case 'D':
+        case 'y': case 'Y': case 'd': case 'D':
+            yd = 1;
+            break;
         case 'h': case 'H': case 's': case 'S':
-            return 1;
+            hs = 1;
+            break;
+        case 'm': case 'M':
+            m = 1;
+            break;
         default:
             break;
         }
     }
-    return 0;
+    return yd || (m && !hs);
 }
 
 static int parse_u32(const char *s, uint32_t *v)
@@ -541,6 +580,7 @@ static void XMLCALL st_start(void *ud, const XML_Char *n, const XML_Char **a)
             return;
         }
         b->fmts[b->nfmts].id = id;
+        b->fmts[b->nfmts].seq = (uint32_t)b->nfmts;
         b->fmts[b->nfmts].is_date = code_is_date(code);
         b->nfmts++;
     }
@@ -553,6 +593,20 @@ static void XMLCALL st_end(void *ud, const XML_Char *n)
         b->in_cellxfs = 0;
 }
 
+static int numfmt_order(const void *pa, const void *pb)
+{
+    const numfmt *a = pa, *b = pb;
+    if (a->id != b->id)
+        return a->id < b->id ? -1 : 1;
+    return a->seq < b->seq ? -1 : a->seq > b->seq;
+}
+
+static int numfmt_find(const void *key, const void *elem)
+{
+    uint32_t id = *(const uint32_t *)key, e = ((const numfmt *)elem)->id;
+    return id < e ? -1 : id > e;
+}
+
 static rf_status read_styles(book *b, const char *part)
 {
     zipxml_handlers h = {st_start, st_end, NULL};
@@ -562,14 +616,26 @@ static rf_status read_styles(book *b, const char *part)
     b->xf_date = calloc(b->nxf + 1, 1);
     if (b->xf_date == NULL)
         return error_nomem(b->err, b->name);
+    /* Sorted by id once, then looked up: a crafted part with a million
+     * styles and a million formats must not cost their product. A custom
+     * code may redefine an id; the last definition wins, so of each run of
+     * one id only the last (by seq) is kept. */
+    size_t n = 0;
+    if (b->nfmts > 0) {
+        qsort(b->fmts, b->nfmts, sizeof *b->fmts, numfmt_order);
+        for (size_t j = 0; j < b->nfmts; j++) {
+            if (n > 0 && b->fmts[n - 1].id == b->fmts[j].id)
+                n--;
+            b->fmts[n++] = b->fmts[j];
+        }
+    }
     for (size_t i = 0; i < b->nxf; i++) {
         uint32_t id = b->xf_fmt[i];
-        int date = builtin_date(id);
-        /* A custom code may redefine an id; the last definition wins. */
-        for (size_t j = 0; j < b->nfmts; j++)
-            if (b->fmts[j].id == id)
-                date = b->fmts[j].is_date;
-        b->xf_date[i] = (unsigned char)date;
+        const numfmt *f = n > 0 ? bsearch(&id, b->fmts, n, sizeof *b->fmts,
+                                          numfmt_find)
+                                : NULL;
+        b->xf_date[i] = (unsigned char)(f != NULL ? f->is_date
+                                                  : builtin_date(id));
     }
     return RF_OK;
 }
@@ -586,6 +652,7 @@ typedef struct sheet_ctx {
     size_t nslen;
     int root_seen;
     int in_data, in_cell, in_is, in_rph, collect, have_v;
+    int have_f;            /* the cell holds a formula (<f>) */
     uint32_t row, next_col;
     uint32_t crow, ccol, cstyle;
     int ctype;
@@ -708,12 +775,20 @@ static void grid_failed(sheet_ctx *c, rf_status st, const rf_error *e)
     zipxml_fail(c->b->z, st, e->where, "%s", e->message);
 }
 
+/* A formula with no saved result: no <v>, or an empty one where empty
+ * text is not a result (see the file comment). */
+static int formula_unsaved(const sheet_ctx *c)
+{
+    return c->have_f && (!c->have_v || (c->len == 0 && c->ctype != T_STR));
+}
+
 static void emit(sheet_ctx *c)
 {
-    if (!c->have_v)
+    int unsaved = formula_unsaved(c);
+    if (!c->have_v && !unsaved)
         return;
     if (c->g == NULL) {  /* measuring */
-        if (c->len > 0 || c->ctype == T_S) {
+        if (c->len > 0 || c->ctype == T_S || unsaved) {
             if (c->crow > c->used_rows)
                 c->used_rows = c->crow;
             if (c->ccol + 1 > c->used_cols)
@@ -726,6 +801,13 @@ static void emit(sheet_ctx *c)
     double v;
     const char *s = c->buf;
     size_t len = c->len;
+    if (unsaved) {
+        st = grid_error(c->g, c->crow, c->ccol, XLSX_FORMULA_UNSAVED,
+                        strlen(XLSX_FORMULA_UNSAVED), &e);
+        if (st != RF_OK)
+            grid_failed(c, st, &e);
+        return;
+    }
     switch (c->ctype) {
     case T_N:
         if (len == 0)
@@ -825,6 +907,7 @@ static void start_cell(sheet_ctx *c, const XML_Char **a)
     }
     c->in_cell = 1;
     c->have_v = 0;
+    c->have_f = 0;
     c->len = 0;
     c->ccol = c->next_col;
     c->crow = c->row == 0 ? 1 : c->row;
@@ -866,6 +949,8 @@ static void XMLCALL sh_start(void *ud, const XML_Char *n,
             c->collect = 1;
             c->have_v = 1;
             c->len = 0;
+        } else if (l[0] == 'f' && l[1] == '\0') {
+            c->have_f = 1;  /* its text is not collected: never evaluated */
         } else if (strcmp(l, "is") == 0) {
             c->in_is = 1;
             c->have_v = 1;

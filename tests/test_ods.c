@@ -656,6 +656,58 @@ static void test_ods_later_sheet_stops_reading_early(void **state)
     table_free(t);
 }
 
+/* What io/ods.c gives a formula with no saved result (its
+ * ODS_FORMULA_UNSAVED; the family of io/xls.c's #FORMULA reason). A
+ * program that does not calculate writes table:formula with no
+ * office:value-type and no text (OpenDocument 1.2 part 1, 19.385: the
+ * value type is what says a cell has a value). */
+#define UNSAVED "#FORMULA: this formula has no saved result (the file was " \
+    "written by a program that does not calculate); open it in a " \
+    "spreadsheet program and save it"
+#define FORMULA(f) "<table:table-cell table:formula=\"" f "\"/>"
+
+static void test_ods_formula_without_saved_result_is_error(void **state)
+{
+    (void)state;
+    table *t = read_ok(HEAD SHEET("S", HEADER2
+        ROW(NUM("1") FORMULA("of:=[.A2]*2"))
+        ROW(FORMULA("of:=[.A2]+1") FORMULA("of:=[.B2]"))
+        ROW(NUM("2") "<table:table-cell table:formula=\"of:=[.A4]\">"
+            "<text:p>2</text:p></table:table-cell>")) TAIL);
+    assert_int_equal(table_cell_type(t, 0, 1), CELL_ERROR);
+    assert_string_equal(table_cell_text(t, 0, 1), UNSAVED);
+    /* a row holding only such formulas is kept, not dropped as blank */
+    assert_int_equal(table_rows(t), 3);
+    assert_int_equal(table_row_source(t, 1), 3);
+    assert_int_equal(table_cell_type(t, 1, 0), CELL_ERROR);
+    assert_string_equal(table_cell_text(t, 1, 0), UNSAVED);
+    assert_int_equal(table_cell_type(t, 1, 1), CELL_ERROR);
+    /* a formula that shows a result without a type keeps what it shows */
+    assert_int_equal(table_cell_type(t, 2, 1), CELL_TEXT);
+    assert_close(table_cell_number(t, 2, 0), 2, 0, 0);
+    table_free(t);
+}
+
+static void test_ods_sheets_counts_unsaved_formulas_as_used(void **state)
+{
+    (void)state;
+    make_ods(HEAD SHEET("S", HEADER2 ROW(NUM("1"))
+        "<table:table-row table:number-rows-repeated=\"3\">"
+        "<table:table-cell/></table:table-row>"
+        ROW("<table:table-cell table:number-columns-repeated=\"2\"/>"
+            FORMULA("of:=[.A2]*2"))) TAIL);
+    grid_sheet *s = NULL;
+    size_t n = 0;
+    rf_error e;
+    rf_status st = ods_sheets(path, "x.ods", &s, &n, &e);
+    unlink(path);
+    assert_int_equal(st, RF_OK);
+    assert_int_equal(n, 1);
+    assert_int_equal(s[0].rows, 6);
+    assert_int_equal(s[0].cols, 3);
+    grid_sheets_free(s, n);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -685,6 +737,8 @@ int main(void)
         cmocka_unit_test(test_ods_missing_content_fails),
         cmocka_unit_test(test_ods_bad_files_fail_naming_the_part),
         cmocka_unit_test(test_ods_later_sheet_stops_reading_early),
+        cmocka_unit_test(test_ods_formula_without_saved_result_is_error),
+        cmocka_unit_test(test_ods_sheets_counts_unsaved_formulas_as_used),
     };
     return cmocka_run_group_tests_name("ods", tests, NULL, NULL);
 }

@@ -247,9 +247,11 @@ static void test_xlsx_sheets_lists_names_and_used_size(void **state)
             "relationships"
 
 /* A one-sheet workbook "S" whose sheet part holds `data` inside
- * <sheetData>; sst is the shared-string part's <si> items or NULL. */
-static void write_book(fixture *f, const char *dimension, const char *data,
-                       const char *sst)
+ * <sheetData>; sst is the shared-string part's <si> items or NULL; styles
+ * the styles part's content inside <styleSheet>, or NULL. */
+static void write_styled_book(fixture *f, const char *dimension,
+                              const char *data, const char *sst,
+                              const char *styles)
 {
     zipFile zf = zt_create(f->path);
     zt_add_text(zf, "_rels/.rels",
@@ -271,7 +273,9 @@ static void write_book(fixture *f, const char *dimension, const char *data,
                 "<Relationship Id=\"rId2\" Type=\"" REL "/chartsheet\" "
                 "Target=\"chartsheets/c.xml\"/>"
                 "<Relationship Id=\"rId3\" Type=\"" REL "/sharedStrings\" "
-                "Target=\"strings.xml\"/></Relationships>");
+                "Target=\"strings.xml\"/>"
+                "<Relationship Id=\"rId4\" Type=\"" REL "/styles\" "
+                "Target=\"styles.xml\"/></Relationships>");
     char *xml = malloc(strlen(data) + 512);
     assert_non_null(xml);
     sprintf(xml, "<worksheet " NS ">%s<sheetData>%s</sheetData></worksheet>",
@@ -283,7 +287,20 @@ static void write_book(fixture *f, const char *dimension, const char *data,
         snprintf(buf, sizeof buf, "<sst " NS ">%s</sst>", sst);
         zt_add_text(zf, "xl/strings.xml", buf);
     }
+    if (styles != NULL) {
+        char *st = malloc(strlen(styles) + 128);
+        assert_non_null(st);
+        sprintf(st, "<styleSheet " NS ">%s</styleSheet>", styles);
+        zt_add_text(zf, "xl/styles.xml", st);
+        free(st);
+    }
     zt_close(zf);
+}
+
+static void write_book(fixture *f, const char *dimension, const char *data,
+                       const char *sst)
+{
+    write_styled_book(f, dimension, data, sst, NULL);
 }
 
 #define HEAD "<row r=\"1\"><c r=\"A1\" t=\"inlineStr\"><is><t>a</t></is></c>" \
@@ -490,6 +507,208 @@ static void test_xlsx_bad_files_are_refused(void **state)
     }
 }
 
+/* ---- formulas without results, times of day, many styles ------------- */
+
+/* What io/xlsx.c gives a formula with no saved result (its
+ * XLSX_FORMULA_UNSAVED; the same family as io/xls.c's #FORMULA reason). */
+#define UNSAVED "#FORMULA: this formula has no saved result (the file was " \
+    "written by a program that does not calculate); open it in a " \
+    "spreadsheet program and save it"
+
+/* tests/data/xlsx-unsaved.xlsx is written by python3-openpyxl, which saves
+ * formulas as <f> with an empty <v> (it does not calculate). */
+static void test_xlsx_formula_without_saved_result_is_error(void **state)
+{
+    fixture *f = *state;
+    assert_int_equal(read_book(f, DATA "xlsx-unsaved.xlsx", NULL, 0),
+                     RF_OK);
+    long dbl = table_find_column(f->t, "double");
+    long lab = table_find_column(f->t, "label");
+    assert_true(dbl >= 0 && lab >= 0);
+    for (size_t i = 0; i < table_rows(f->t); i++) {
+        assert_int_equal(table_cell_type(f->t, i, (size_t)dbl), CELL_ERROR);
+        assert_string_equal(table_cell_text(f->t, i, (size_t)dbl), UNSAVED);
+        assert_int_equal(table_cell_type(f->t, i, (size_t)lab), CELL_ERROR);
+    }
+    /* the plain values beside them still read */
+    assert_close(table_cell_number(f->t, 0, 1), 100, 0, 0);
+}
+
+static void test_xlsx_row_of_only_unsaved_formulas_is_kept(void **state)
+{
+    fixture *f = *state;
+    assert_int_equal(read_book(f, DATA "xlsx-unsaved.xlsx", NULL, 0),
+                     RF_OK);
+    /* rows 2, 3 (formulas only) and 4 of the sheet */
+    assert_int_equal(table_rows(f->t), 3);
+    assert_int_equal(table_row_source(f->t, 1), 3);
+    assert_int_equal(table_cell_type(f->t, 1, 0), CELL_BLANK);
+    assert_int_equal(table_cell_type(f->t, 1, 2), CELL_ERROR);
+    assert_close(table_cell_number(f->t, 2, 0), 2, 0, 0);
+}
+
+static void test_xlsx_unsaved_formulas_count_as_used(void **state)
+{
+    fixture *f = *state;
+    /* no <dimension>: measured by streaming. Row 6 holds only a formula
+     * without <v>; an empty t="str" result stays blank, not unsaved. */
+    write_book(f, NULL, HEAD "<row r=\"2\"><c r=\"A2\"><v>1</v></c></row>"
+                             "<row r=\"6\"><c r=\"C6\"><f>A2*2</f></c>"
+                             "</row>", NULL);
+    grid_sheet *s = NULL;
+    size_t n = 0;
+    assert_int_equal(xlsx_sheets(f->path, "book.xlsx", &s, &n, &f->err),
+                     RF_OK);
+    assert_int_equal(s[0].rows, 6);
+    assert_int_equal(s[0].cols, 3);
+    grid_sheets_free(s, n);
+
+    write_book(f, NULL, HEAD "<row r=\"2\"><c r=\"A2\"><v>1</v></c>"
+                             "<c r=\"B2\" t=\"str\"><f>\"\"</f><v></v></c>"
+                             "</row><row r=\"3\"><c r=\"B3\"><f>A2*2</f>"
+                             "</c></row>", NULL);
+    assert_int_equal(read_s(f, NULL), RF_OK);
+    assert_int_equal(table_rows(f->t), 2);
+    assert_int_equal(table_cell_type(f->t, 0, 1), CELL_BLANK);
+    assert_int_equal(table_cell_type(f->t, 1, 1), CELL_ERROR);
+    assert_string_equal(table_cell_text(f->t, 1, 1), UNSAVED);
+}
+
+/* Times of day are numbers (the fraction of a day), as the .ods and .xls
+ * readers give them; a date-time stays a date. The fixture's E column has
+ * the built-in format 21 (h:mm:ss), F "[h]:mm", G "hh:mm", H
+ * "yyyy-mm-dd hh:mm" (openpyxl's style part). */
+static void test_xlsx_time_only_formats_are_numbers(void **state)
+{
+    fixture *f = *state;
+    assert_int_equal(read_book(f, DATA "xlsx-unsaved.xlsx", NULL, 0),
+                     RF_OK);
+    long at = table_find_column(f->t, "at");
+    long span = table_find_column(f->t, "span");
+    long clock = table_find_column(f->t, "clock");
+    long when = table_find_column(f->t, "when");
+    assert_true(at >= 0 && span >= 0 && clock >= 0 && when >= 0);
+    assert_int_equal(table_cell_type(f->t, 0, (size_t)at), CELL_NUMBER);
+    assert_close(table_cell_number(f->t, 0, (size_t)at), 0.5, 0, 0);
+    assert_int_equal(table_column_kind(f->t, (size_t)at), KIND_NUMBER);
+    assert_int_equal(table_cell_type(f->t, 0, (size_t)span), CELL_NUMBER);
+    assert_close(table_cell_number(f->t, 0, (size_t)span), 1.5, 0, 0);
+    assert_int_equal(table_cell_type(f->t, 2, (size_t)clock), CELL_NUMBER);
+    assert_close(table_cell_number(f->t, 2, (size_t)clock), 0.5, 0, 0);
+    assert_int_equal(table_cell_type(f->t, 0, (size_t)when), CELL_DATE);
+    /* 2026-03-15 18:00 = 46096 + 0.75 */
+    assert_close(table_cell_number(f->t, 0, (size_t)when), 46096.75, 0, 0);
+}
+
+/* Custom codes one by one: xf i uses numFmt 164 + i. */
+static void test_xlsx_time_only_custom_codes_are_numbers(void **state)
+{
+    fixture *f = *state;
+    static const struct {
+        const char *code;
+        int date;
+    } codes[] = {
+        {"h:mm:ss", 0}, {"[h]:mm:ss", 0}, {"[mm]:ss", 0}, {"hh:mm", 0},
+        {"mm:ss.0", 0}, {"[$-409]h:mm AM/PM", 0}, {"&quot;d&quot;h", 0},
+        {"yyyy-mm-dd hh:mm", 1}, {"d-mmm", 1}, {"mmm", 1}, {"[h]\\d", 0},
+        {"dd/mm/yyyy", 1}, {"0.00", 0},
+    };
+    enum { N = sizeof codes / sizeof codes[0] };
+    char styles[4096], data[4096];
+    size_t o = (size_t)snprintf(styles, sizeof styles, "<numFmts>");
+    for (size_t i = 0; i < N; i++)
+        o += (size_t)snprintf(styles + o, sizeof styles - o,
+                              "<numFmt numFmtId=\"%zu\" formatCode=\"%s\"/>",
+                              164 + i, codes[i].code);
+    o += (size_t)snprintf(styles + o, sizeof styles - o, "</numFmts><cellXfs>");
+    for (size_t i = 0; i < N; i++)
+        o += (size_t)snprintf(styles + o, sizeof styles - o,
+                              "<xf numFmtId=\"%zu\"/>", 164 + i);
+    snprintf(styles + o, sizeof styles - o, "</cellXfs>");
+    o = (size_t)snprintf(data, sizeof data, HEAD);
+    for (size_t i = 0; i < N; i++)
+        o += (size_t)snprintf(data + o, sizeof data - o,
+                              "<row><c s=\"%zu\"><v>0.5</v></c></row>", i);
+    write_styled_book(f, NULL, data, NULL, styles);
+    assert_int_equal(read_s(f, NULL), RF_OK);
+    assert_int_equal(table_rows(f->t), N);
+    for (size_t i = 0; i < N; i++)
+        if (table_cell_type(f->t, i, 0) !=
+            (codes[i].date ? CELL_DATE : CELL_NUMBER))
+            fail_msg("format '%s' gave type %d", codes[i].code,
+                     table_cell_type(f->t, i, 0));
+}
+
+/* A styles part with thousands of formats and cell styles (the lookup is
+ * sorted, not every style against every format): built-in ids, undefined
+ * ids, and formats redefined later in the part (the last definition
+ * wins) all resolve as before. */
+#define MANY_FMTS 3000
+#define MANY_REDEFINED 100
+#define MANY_XFS 6000
+
+static int many_expected_date(size_t xf)
+{
+    switch (xf) {
+    case 0: return 0;   /* General */
+    case 1: return 1;   /* 14, a built-in date */
+    case 2: return 0;   /* 20, a built-in time of day */
+    case 3: return 0;   /* 9999, defined nowhere */
+    default: {
+        size_t j = (xf - 4) % MANY_FMTS;
+        return (j % 2 == 0) != (j < MANY_REDEFINED);
+    }
+    }
+}
+
+static void test_xlsx_many_styles_and_formats_resolve(void **state)
+{
+    fixture *f = *state;
+    size_t cap = (size_t)(MANY_FMTS + MANY_REDEFINED + MANY_XFS) * 80;
+    char *styles = malloc(cap);
+    assert_non_null(styles);
+    size_t o = (size_t)snprintf(styles, cap, "<numFmts>");
+    for (size_t j = 0; j < MANY_FMTS + MANY_REDEFINED; j++) {
+        size_t id = j % MANY_FMTS;  /* the first ids come twice */
+        int date = (id % 2 == 0) != (j >= MANY_FMTS);
+        o += (size_t)snprintf(styles + o, cap - o,
+                              "<numFmt numFmtId=\"%zu\" formatCode=\"%s\"/>",
+                              164 + id, date ? "yyyy-mm-dd" : "0.00");
+    }
+    o += (size_t)snprintf(styles + o, cap - o,
+                          "</numFmts><cellXfs><xf numFmtId=\"0\"/>"
+                          "<xf numFmtId=\"14\"/><xf numFmtId=\"20\"/>"
+                          "<xf numFmtId=\"9999\"/>");
+    for (size_t k = 4; k < MANY_XFS; k++)
+        o += (size_t)snprintf(styles + o, cap - o, "<xf numFmtId=\"%zu\"/>",
+                              164 + (k - 4) % MANY_FMTS);
+    snprintf(styles + o, cap - o, "</cellXfs>");
+    assert_true(o < cap - 16);
+
+    static const size_t probe[] = {0, 1, 2, 3, 4, 5, 50, 103, 104, 105,
+                                   3003, 3004, 3005, 3103, 3104, 5000,
+                                   MANY_XFS - 1};
+    enum { P = sizeof probe / sizeof probe[0] };
+    char data[4096];
+    o = (size_t)snprintf(data, sizeof data, HEAD);
+    for (size_t i = 0; i < P; i++)
+        o += (size_t)snprintf(data + o, sizeof data - o,
+                              "<row><c s=\"%zu\"><v>45000</v></c>"
+                              "<c><v>%zu</v></c></row>", probe[i], probe[i]);
+    write_styled_book(f, NULL, data, NULL, styles);
+    free(styles);
+    assert_int_equal(read_s(f, NULL), RF_OK);
+    assert_int_equal(table_rows(f->t), P);
+    for (size_t i = 0; i < P; i++) {
+        cell_type want = many_expected_date(probe[i]) ? CELL_DATE
+                                                      : CELL_NUMBER;
+        if (table_cell_type(f->t, i, 0) != want)
+            fail_msg("style %zu gave type %d", probe[i],
+                     table_cell_type(f->t, i, 0));
+        assert_close(table_cell_number(f->t, i, 0), 45000, 0, 0);
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -518,6 +737,12 @@ int main(void)
         T(test_xlsx_missing_sheet_part),
         T(test_xlsx_workbook_without_sheets),
         T(test_xlsx_bad_files_are_refused),
+        T(test_xlsx_formula_without_saved_result_is_error),
+        T(test_xlsx_row_of_only_unsaved_formulas_is_kept),
+        T(test_xlsx_unsaved_formulas_count_as_used),
+        T(test_xlsx_time_only_formats_are_numbers),
+        T(test_xlsx_time_only_custom_codes_are_numbers),
+        T(test_xlsx_many_styles_and_formats_resolve),
 #undef T
     };
     return cmocka_run_group_tests_name("xlsx", tests, NULL, NULL);

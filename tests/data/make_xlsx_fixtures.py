@@ -217,6 +217,13 @@ def package(path, sheets, sst=None, styles=None, date1904=False,
         z.writestr("xl/_rels/workbook.xml.rels", "".join(rels))
 
 
+# What the reader gives a formula cell with no saved result (io/xlsx.c,
+# XLSX_FORMULA_UNSAVED): G3 of xlsx-hand.xlsx has <f> and no <v>.
+FORMULA_UNSAVED = ("#FORMULA: this formula has no saved result (the file "
+                   "was written by a program that does not calculate); "
+                   "open it in a spreadsheet program and save it")
+
+
 def make_by_hand():
     sst = ('<?xml version="1.0" encoding="UTF-8"?><sst %s count="4" '
            'uniqueCount="4">'
@@ -283,7 +290,7 @@ def make_by_hand():
         ["Elm Row", dt.date(2024, 1, 1), 101.5, 2.75, True,
          dt.datetime(2026, 3, 15, 12, 0), "Elm Row!"],
         ["Kōbe-chō", dt.date(1900, 3, 1), None, None, "#REF!",
-         dt.date(1999, 12, 31), None],
+         dt.date(1999, 12, 31), FORMULA_UNSAVED],
         [None] * 7,
         ["Kōbe-chō", None, 1500.0, None, False, None, None],
     ])
@@ -323,6 +330,28 @@ def patch_size(path, member, size):
     open(path, "wb").write(bytes(data))
 
 
+def make_unsaved():
+    """xlsx-unsaved.xlsx: formulas as openpyxl saves them (no results:
+    openpyxl does not calculate), a row holding only formulas, and times
+    of day under time-only formats beside a date-time. Checked directly by
+    tests/test_xlsx.c (no twin: the formula cells have no value to write)."""
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Times"
+    ws.append(["id", "price", "double", "label", "at", "span", "clock",
+               "when"])
+    ws.append([1, 100.0, "=B2*2", '="lot "&A2', dt.time(12, 0), 1.5, 0.25,
+               dt.datetime(2026, 3, 15, 18, 0)])
+    ws.append([None, None, "=B2+1", "=A2&A2", None, None, None, None])
+    ws.append([2, 50.0, "=B4*2", '="lot "&A4', dt.time(6, 0), 0.75, 0.5,
+               dt.datetime(2025, 1, 2, 6, 0)])
+    for r in (2, 4):
+        ws.cell(r, 6).number_format = "[h]:mm"      # elapsed hours
+        ws.cell(r, 7).number_format = "hh:mm"       # custom time of day
+        ws.cell(r, 8).number_format = "yyyy-mm-dd hh:mm"
+    wb.save(out("xlsx-unsaved.xlsx"))
+
+
 def make_bad():
     src = open(out("xlsx-types.xlsx"), "rb").read()
     with open(os.path.join(BAD, "xlsx-truncated.xlsx"), "wb") as f:
@@ -357,7 +386,9 @@ def make_bad():
 
 
 if __name__ == "__main__":
-    make_openpyxl()
-    make_bad()
-    make_by_hand()
-    make_libreoffice()
+    # Names given on the command line ("unsaved") make only those.
+    makers = {"openpyxl": make_openpyxl, "bad": make_bad,
+              "hand": make_by_hand, "libreoffice": make_libreoffice,
+              "unsaved": make_unsaved}
+    for name in sys.argv[1:] or list(makers):
+        makers[name]()
