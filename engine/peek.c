@@ -148,7 +148,7 @@ rf_status peek_text(const char *path, const char *name, const char *sheet,
         if ((st = reader_sheets(path, name, &fmt, &sheets, &n, warn, err)))
             return st;
         if (fmt != FORMAT_CSV) {
-            add(&t, "%s: %s, %zu sheet%s\n", name, reader_format_name(fmt),
+            add(&t, "%s: %s with %zu sheet%s\n", name, reader_format_name(fmt),
                 n, n == 1 ? "" : "s");
             size_t w = strlen("sheet");
             for (size_t i = 0; i < n; i++)

@@ -23,9 +23,9 @@ const char *reader_format_name(reader_format f)
 {
     switch (f) {
     case FORMAT_CSV:  return "CSV text";
-    case FORMAT_XLSX: return ".xlsx workbook";
-    case FORMAT_ODS:  return ".ods spreadsheet";
-    case FORMAT_XLS:  return ".xls workbook";
+    case FORMAT_XLSX: return "an .xlsx workbook";
+    case FORMAT_ODS:  return "an .ods spreadsheet";
+    case FORMAT_XLS:  return "an .xls workbook";
     }
     return "file";
 }
@@ -82,6 +82,8 @@ rf_status reader_detect(const char *path, const char *name,
                         rf_error *err)
 {
     FILE *f = fopen(path, "rb");
+    if (f == NULL && errno == ENOENT)
+        return error_set(err, RF_EINPUT, name, "no such file");
     if (f == NULL)
         return error_set(err, RF_ESYSTEM, name, "cannot open: %s",
                          strerror(errno));
@@ -118,8 +120,8 @@ rf_status reader_detect(const char *path, const char *name,
         *fmt = FORMAT_CSV;
     }
     if (!name_fits(name, *fmt))
-        error_warn(warn, name, "the file's name says otherwise, but it is a "
-                   "%s; read as one", reader_format_name(*fmt));
+        error_warn(warn, name, "the file's name says otherwise, but it is "
+                   "%s; read as such", reader_format_name(*fmt));
     return RF_OK;
 }
 
@@ -142,7 +144,7 @@ rf_status reader_read(const char *path, const char *name,
     }
     if (opt->delimiter)
         return error_set(err, RF_EINPUT, name,
-                         "is a %s; 'delimiter' applies to CSV text only",
+                         "is %s; 'delimiter' applies to CSV text only",
                          reader_format_name(fmt));
     switch (fmt) {
     case FORMAT_XLSX:

@@ -37,7 +37,7 @@ rf_status reader_detect(const char *path, const char *name,
                         reader_format *fmt, rf_warnings *warn,
                         rf_error *err);
 
-/* "CSV text", ".xlsx workbook", ... for messages. */
+/* "CSV text", "an .xlsx workbook", ... for messages. */
 const char *reader_format_name(reader_format f);
 
 /* Reads the table (caller frees). A sheet given for CSV text, or a
