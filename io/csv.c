@@ -94,19 +94,6 @@ static int is_digit(char c)
     return c >= '0' && c <= '9';
 }
 
-/* table_trim_span, inlined: it runs for every cell. */
-static inline const char *trim(const char *s, size_t *len)
-{
-    size_t n = *len;
-    while (n > 0 && is_space(*s)) {
-        s++;
-        n--;
-    }
-    while (n > 0 && is_space(s[n - 1]))
-        n--;
-    *len = n;
-    return s;
-}
 
 static const char *delim_name(char d)
 {
@@ -287,7 +274,7 @@ static int parse_number(const char *s, size_t len, double *v)
 
 int csv_parse_number(const char *s, size_t len, double *v)
 {
-    s = trim(s, &len);
+    s = table_trim_span(s, &len);
     if (len == 0 || len > CSV_NUMBER_MAX)
         return 0;
     return parse_number(s, len, v);
@@ -337,7 +324,7 @@ static void read_cell(const char *base, const field *f, table_cell_in *cell)
 {
     const char *raw = base + f->off;
     size_t len = f->len;
-    const char *s = trim(raw, &len);
+    const char *s = table_trim_span(raw, &len);
     if (len == 0) {
         cell->type = CELL_BLANK;
         return;
@@ -370,7 +357,7 @@ static void read_cell(const char *base, const field *f, table_cell_in *cell)
 static int field_is_empty(const char *base, const field *f)
 {
     size_t len = f->len;
-    trim(base + f->off, &len);
+    table_trim_span(base + f->off, &len);
     return len == 0;
 }
 

@@ -78,18 +78,6 @@ static int is_space(char c)
     return c == ' ' || c == '\t';
 }
 
-const char *table_trim_span(const char *s, size_t *len)
-{
-    size_t n = *len;
-    while (n > 0 && is_space(*s)) {
-        s++;
-        n--;
-    }
-    while (n > 0 && is_space(s[n - 1]))
-        n--;
-    *len = n;
-    return s;
-}
 
 static int ascii_lower(int c)
 {

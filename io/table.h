@@ -120,7 +120,19 @@ char *table_cell_show(const table *t, size_t row, size_t col, char *buf,
 /* Text helpers shared by the readers. table_trim_span returns the span of
  * s[0..*len) without leading and trailing spaces and tabs (and sets *len);
  * table_word_is compares s[0..n) with a lowercase ASCII word ignoring case. */
-const char *table_trim_span(const char *s, size_t *len);
+static inline const char *table_trim_span(const char *s, size_t *len)
+{
+    /* inline: the readers run it for every cell */
+    size_t n = *len;
+    while (n > 0 && (*s == ' ' || *s == '\t')) {
+        s++;
+        n--;
+    }
+    while (n > 0 && (s[n - 1] == ' ' || s[n - 1] == '\t'))
+        n--;
+    *len = n;
+    return s;
+}
 int table_word_is(const char *s, size_t n, const char *word);
 
 /* Column letters for a 0-based column index: 0 -> "A", 27 -> "AB". */
