@@ -434,6 +434,11 @@ void design_free(design *d)
             intern_free(&lev[k]);
         free(lev);
     }
+    if (d->class_store) {
+        intern_free(d->class_store);
+        free(d->class_store);
+    }
+    free(d->label);
     free(d->inputs);
     for (size_t k = 0; d->formulas && k < d->n_formulas; k++)
         formula_free(d->formulas[k]);
@@ -502,6 +507,148 @@ static char *keep_reason(const char *why)
     return strdup(why);
 }
 
+/* The class label of a target value for model logistic: a number as a
+ * spreadsheet shows it, a yes-no cell as TRUE/FALSE, text trimmed; the
+ * words yes, no, true and false in any case are one label each. */
+static rf_status class_label(design *d, intern *tlab, size_t o,
+                             const table *t, size_t r, long col,
+                             const fvalue *v, rf_error *err)
+{
+    char buf[64];
+    const char *text = buf;
+    size_t len;
+    if (v->type == FV_NUMBER) {
+        if (t && col >= 0 && table_cell_type(t, r, (size_t)col) == CELL_BOOL)
+            snprintf(buf, sizeof buf, "%s", v->num != 0 ? "true" : "false");
+        else
+            snprintf(buf, sizeof buf, "%.15Lg", v->num);
+    } else {
+        len = strlen(v->text);
+        const char *s = table_trim_span(v->text, &len);
+        static const char *const words[] = { "yes", "no", "true", "false" };
+        text = NULL;
+        for (size_t k = 0; k < 4 && !text; k++)
+            if (table_word_is(s, len, words[k]))
+                text = words[k];
+        if (text == NULL) {
+            char *copy = strndup(s, len);
+            if (copy == NULL)
+                return nomem(err);
+            const char *in = intern_add(tlab, copy);
+            free(copy);
+            if (in == NULL)
+                return nomem(err);
+            d->label[o] = in;
+            return RF_OK;
+        }
+    }
+    if ((d->label[o] = intern_add(tlab, text)) == NULL)
+        return nomem(err);
+    return RF_OK;
+}
+
+static int same_word(const char *a, const char *b)
+{
+    for (; *a && *b; a++, b++) {
+        int x = (*a >= 'A' && *a <= 'Z') ? *a - 'A' + 'a' : *a;
+        int y = (*b >= 'A' && *b <= 'Z') ? *b - 'A' + 'a' : *b;
+        if (x != y)
+            return 0;
+    }
+    return *a == *b;
+}
+
+/* model logistic: the fitted rows' target must have exactly two classes;
+ * the positive one is `positive`, or 1 / yes / true. Sets target[] to 1 or
+ * 0 in fitted rows. Errors list the values found (at most ten, counted). */
+static rf_status code_classes(design *d, const job *j, intern *tlab,
+                              rf_error *err)
+{
+    size_t nl = tlab->n;
+    size_t *count = calloc(nl ? nl : 1, sizeof *count);
+    if (count == NULL)
+        return nomem(err);
+    for (size_t o = 0; o < d->n_rows; o++)
+        if (d->rows[o].status == ROW_FITTED)
+            count[intern_find(tlab, d->label[o])]++;
+    size_t used = 0, a = 0, b = 0;
+    for (size_t l = 0; l < nl; l++)
+        if (count[l]) {
+            if (used == 0)
+                a = l;
+            else if (used == 1)
+                b = l;
+            used++;
+        }
+    char where[ERROR_WHERE_MAX], list[ERROR_MESSAGE_MAX / 2];
+    size_t pos = 0;
+    list[0] = '\0';
+    for (size_t l = 0, shown = 0; l < nl && shown < 10; l++)
+        if (count[l]) {
+            pos += (size_t)snprintf(list + pos, sizeof list - pos,
+                                    "%s'%.60s' (%zu)", shown ? ", " : "",
+                                    tlab->s[l], count[l]);
+            shown++;
+            if (pos >= sizeof list)
+                break;
+        }
+    snprintf(where, sizeof where, "%s:%d", j->file, j->target.line);
+    rf_status st = RF_OK;
+    if (used != 2) {
+        st = error_set(err, RF_EINPUT, where,
+                       used < 2 ? "a yes/no target needs two values among "
+                                  "the fitted rows; '%s' has %s%s"
+                                : "a yes/no target must have exactly two "
+                                  "values among the fitted rows; '%s' has "
+                                  "%s%s",
+                       j->target.name, used == 0 ? "none" : "",
+                       used == 0 ? "" : list);
+        goto out;
+    }
+    const char *la = tlab->s[a], *lb = tlab->s[b];
+    long positive = -1;
+    if (j->positive) {
+        if (same_word(j->positive, la))
+            positive = (long)a;
+        else if (same_word(j->positive, lb))
+            positive = (long)b;
+        else {
+            snprintf(where, sizeof where, "%s:%d", j->file, j->positive_line);
+            st = error_set(err, RF_EINPUT, where,
+                           "positive '%s' is not a value of '%s', whose "
+                           "values are %s", j->positive, j->target.name, list);
+            goto out;
+        }
+    } else {
+        static const char *const yes[] = { "1", "yes", "true" };
+        static const char *const no[] = { "0", "no", "false" };
+        for (size_t k = 0; k < 3 && positive < 0; k++) {
+            if (strcmp(la, yes[k]) == 0 && strcmp(lb, no[k]) == 0)
+                positive = (long)a;
+            else if (strcmp(lb, yes[k]) == 0 && strcmp(la, no[k]) == 0)
+                positive = (long)b;
+        }
+        if (positive < 0) {
+            st = error_set(err, RF_EINPUT, where,
+                           "the target '%s' has the values %s; say which is "
+                           "the event with `positive VALUE`",
+                           j->target.name, list);
+            goto out;
+        }
+    }
+    size_t neg = (size_t)positive == a ? b : a;
+    d->positive = tlab->s[positive];
+    d->negative = tlab->s[neg];
+    d->n_positive = count[positive];
+    d->n_negative = count[neg];
+    for (size_t o = 0; o < d->n_rows; o++)
+        if (d->rows[o].status == ROW_FITTED)
+            d->target[o] = d->label[o] == d->positive ? 1 : 0;
+out:
+    free(count);
+    return st;
+}
+
 rf_status design_build(const job *j, const table *data, const table *score,
                        design **out, rf_warnings *warn, rf_error *err)
 {
@@ -515,12 +662,14 @@ rf_status design_build(const job *j, const table *data, const table *score,
     source *src[2] = { NULL, NULL };
     source tsrc = { -1, -1 };
     unsigned char *needed = NULL;
+    intern *tlab = calloc(1, sizeof *tlab);
     design *d = calloc(1, sizeof *d);
-    if (f == NULL || d == NULL) {
+    if (f == NULL || d == NULL || tlab == NULL) {
         st = nomem(err);
         goto done;
     }
     d->intercept = j->intercept;
+    d->binary = j->model == MODEL_LOGISTIC;
     d->id_col_data = d->id_col_score = -1;
 
     /* derives: parse, and names that clash */
@@ -634,6 +783,11 @@ rf_status design_build(const job *j, const table *data, const table *score,
     d->n_rows = nrows;
     d->rows = calloc(nrows ? nrows : 1, sizeof *d->rows);
     d->target = malloc((nrows ? nrows : 1) * sizeof *d->target);
+    d->label = calloc(nrows ? nrows : 1, sizeof *d->label);
+    if (d->label == NULL) {
+        st = nomem(err);
+        goto done;
+    }
     lev = calloc(ni ? ni : 1, sizeof *lev);
     if (d->rows == NULL || d->target == NULL || lev == NULL) {
         st = nomem(err);
@@ -676,8 +830,12 @@ rf_status design_build(const job *j, const table *data, const table *score,
                     tv = cell_value(t, r, (size_t)tsrc.col);
                     if (tv.type == FV_BLANK)
                         blank_target = 1;
-                    else if ((bad = not_number(j->target.name, &tv, why,
-                                               sizeof why)))
+                    else if (d->binary && tv.type != FV_ERROR) {
+                        if ((st = class_label(d, tlab, o, t, r, tsrc.col,
+                                              &tv, err)))
+                            goto done;
+                    } else if ((bad = not_number(j->target.name, &tv, why,
+                                                 sizeof why)))
                         bad_col = tsrc.col;
                 } else if (source_value(c, r, tsrc, &tv, &w)) {
                     /* a derived target with a blank cell under it is
@@ -688,10 +846,13 @@ rf_status design_build(const job *j, const table *data, const table *score,
                         snprintf(why, sizeof why, "%s", w);
                         bad = why;
                     }
-                } else if ((bad = not_number(j->target.name, &tv, why,
-                                             sizeof why)) && tv.type == FV_BLANK) {
-                    bad = NULL;
+                } else if (tv.type == FV_BLANK) {
                     blank_target = 1;
+                } else if (d->binary && tv.type != FV_ERROR) {
+                    if ((st = class_label(d, tlab, o, NULL, 0, -1, &tv, err)))
+                        goto done;
+                } else {
+                    bad = not_number(j->target.name, &tv, why, sizeof why);
                 }
                 if (!bad && !blank_target) {
                     d->target[o] = tv.num;
@@ -747,6 +908,9 @@ rf_status design_build(const job *j, const table *data, const table *score,
             }
         }
     }
+
+    if (d->binary && (st = code_classes(d, j, tlab, err)))
+        goto done;
 
     /* pass 2: category levels from the fitted rows */
     for (size_t o2 = 0; o2 < nrows; o2++)
@@ -942,6 +1106,8 @@ rf_status design_build(const job *j, const table *data, const table *score,
     f = NULL;
     d->store = lev;
     lev = NULL;
+    d->class_store = tlab;
+    tlab = NULL;
     *out = d;
     d = NULL;
 done:
@@ -954,6 +1120,11 @@ done:
             formula_free(f[k]);
     free(f);
     free(needed);
+    if (tlab && d) {
+        d->class_store = tlab;   /* design_free frees the labels */
+        tlab = NULL;
+    }
+    free(tlab);
     if (lev && d) {
         d->store = lev;   /* design_free frees the interned levels */
         lev = NULL;

@@ -67,9 +67,17 @@ typedef struct design {
     size_t rows_skipped;
     long target_col;      /* the target's column in data, -1 if derived */
     long id_col_data, id_col_score;  /* id column, -1 if none */
+    /* model logistic: the target's two classes; target[] is 1 for the
+     * positive class and 0 for the other in fitted rows */
+    int binary;
+    const char *positive, *negative;  /* class labels as the data shows them */
+    size_t n_positive, n_negative;    /* among the fitted rows */
+    const char **label;   /* per output row: the class label, or NULL */
+
     struct formula **formulas;  /* the job's derives, parsed, in job order */
     size_t n_formulas;
     void *store;          /* private: the interned level strings */
+    void *class_store;    /* private: the interned class labels */
 } design;
 
 /* Builds the design. score may be NULL; warn must not be. Errors (RF_EINPUT) name the job

@@ -860,6 +860,111 @@ static void test_design_free_accepts_null(void **state)
     design_free(NULL);
 }
 
+/* ---- yes/no targets (model logistic) ----------------------------------
+ * The job parser still refuses `model logistic` (the model is not wired
+ * yet), so these tests parse a linear job and switch its model. */
+
+static const char *const yn_cols[] = { "score", "done" };
+
+static job *logistic_job(const char *positive)
+{
+    job *j = parse_job("data t.csv\ntarget done\ninputs score\n"
+                       "model linear\n");
+    j->model = MODEL_LOGISTIC;
+    if (positive) {
+        j->positive = strdup(positive);
+        j->positive_line = 4;
+    }
+    return j;
+}
+
+static void test_design_yes_no_target_codes_yes_as_one(void **state)
+{
+    (void)state;
+    static const char *const cells[] = {
+        "61.5", "Yes", "48.25", "no", "72.0", "YES", "55.75", "No",
+        "66.0", "",          /* unknown: estimated */
+    };
+    job *j = logistic_job(NULL);
+    table *t = TABLE("t.csv", yn_cols, cells);
+    design *d = build_ok(j, t, NULL, NULL);
+    assert_true(d->binary);
+    assert_string_equal(d->positive, "yes");
+    assert_string_equal(d->negative, "no");
+    assert_int_equal(d->n_positive, 2);
+    assert_int_equal(d->n_negative, 2);
+    assert_int_equal(d->n_fit, 4);
+    assert_true(d->y[0] == 1 && d->y[1] == 0 && d->y[2] == 1 && d->y[3] == 0);
+    assert_int_equal(d->rows[4].status, ROW_ESTIMATED);
+    design_free(d);
+    table_free(t);
+    job_free(j);
+}
+
+static void test_design_zero_one_target_and_named_positive(void **state)
+{
+    (void)state;
+    static const char *const nums[] = {
+        "61.5", "1", "48.25", "0", "72.0", "1", "55.75", "0",
+    };
+    job *j = logistic_job(NULL);
+    table *t = TABLE("t.csv", yn_cols, nums);
+    design *d = build_ok(j, t, NULL, NULL);
+    assert_string_equal(d->positive, "1");
+    assert_true(d->y[0] == 1 && d->y[1] == 0);
+    design_free(d);
+    job_free(j);
+    /* the event can be either class: positive 0 makes 0 the event */
+    j = logistic_job("0");
+    d = build_ok(j, t, NULL, NULL);
+    assert_string_equal(d->positive, "0");
+    assert_true(d->y[0] == 0 && d->y[1] == 1);
+    design_free(d);
+    table_free(t);
+    job_free(j);
+
+    static const char *const words[] = {
+        "61.5", "completed", "48.25", "withdrew", "72.0", "completed",
+        "55.75", "withdrew",
+    };
+    t = TABLE("t.csv", yn_cols, words);
+    j = logistic_job(NULL);
+    build_fails(j, t, NULL, "t.job:2", "say which is the event",
+                "'completed' (2)");
+    job_free(j);
+    j = logistic_job("Completed");   /* matched ignoring case */
+    d = build_ok(j, t, NULL, NULL);
+    assert_string_equal(d->positive, "completed");
+    assert_true(d->y[0] == 1 && d->y[1] == 0);
+    design_free(d);
+    job_free(j);
+    j = logistic_job("graduated");
+    build_fails(j, t, NULL, "t.job:4", "positive 'graduated' is not a value",
+                "'withdrew' (2)");
+    job_free(j);
+    table_free(t);
+}
+
+static void test_design_yes_no_target_needs_exactly_two_values(void **state)
+{
+    (void)state;
+    static const char *const three[] = {
+        "61.5", "yes", "48.25", "no", "72.0", "maybe", "55.75", "no",
+    };
+    job *j = logistic_job(NULL);
+    table *t = TABLE("t.csv", yn_cols, three);
+    build_fails(j, t, NULL, "t.job:2", "exactly two values",
+                "'no' (2), 'maybe' (1)");
+    table_free(t);
+    static const char *const one[] = {
+        "61.5", "yes", "48.25", "yes", "72.0", "yes", "55.75", "yes",
+    };
+    t = TABLE("t.csv", yn_cols, one);
+    build_fails(j, t, NULL, "t.job:2", "needs two values", "'yes' (4)");
+    table_free(t);
+    job_free(j);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -890,6 +995,9 @@ int main(void)
         cmocka_unit_test(test_design_free_accepts_null),
         cmocka_unit_test(test_design_derived_target_needs_no_score_column),
         cmocka_unit_test(test_design_no_terms_at_all_is_error),
+        cmocka_unit_test(test_design_yes_no_target_codes_yes_as_one),
+        cmocka_unit_test(test_design_zero_one_target_and_named_positive),
+        cmocka_unit_test(test_design_yes_no_target_needs_exactly_two_values),
         cmocka_unit_test(test_design_no_intercept_first_category_keeps_every_level),
     };
     return cmocka_run_group_tests_name("design", tests, NULL, NULL);
