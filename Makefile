@@ -116,6 +116,11 @@ $(BUILD)/gen-houses: workbooks/gen-houses.c
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) $(LDFLAGS) -o $@ $< -lgsl -lopenblas -lm
 
+# The second demo's generator (invented applicants; output committed).
+$(BUILD)/gen-applicants: workbooks/gen-applicants.c
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) $(LDFLAGS) -o $@ $< -lgsl -lopenblas -lm
+
 -include $(shell find $(BUILD) -name '*.d' 2>/dev/null)
 
 # What building and running need; the tests need more (test-deps).
