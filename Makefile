@@ -29,7 +29,7 @@ endif
 # Debian packages: the build needs the -dev ones, the tests the rest.
 DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
              libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev nettle-dev
-DEB_TEST  := libcmocka-dev python3 python3-openpyxl libreoffice-calc-nogui time \
+DEB_TEST  := libcmocka-dev python3 python3-openpyxl python3-statsmodels libreoffice-calc-nogui time \
              clang libclang-rt-14-dev
 
 IO_SRC     := $(sort $(wildcard io/*.c))
@@ -136,10 +136,13 @@ demo: deps
 
 check: test-deps
 	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN) $(BUILD)/gen-houses $(FUZZ_BIN)
-	@ROWFIT=$(PROG) BUILD=$(BUILD) GEN=$(BUILD)/gen-houses sh tests/run.sh $(TEST_BIN)
+	@/usr/bin/python3 tests/oracle/logit_oracle.py $(BUILD)/oracle
+	@ROWFIT=$(PROG) BUILD=$(BUILD) GEN=$(BUILD)/gen-houses ROWFIT_ORACLE_DIR=$(BUILD)/oracle \
+	    sh tests/run.sh $(TEST_BIN)
 
 unit: $(TEST_BIN)
-	@for t in $(TEST_BIN); do $$t || exit 1; done
+	@/usr/bin/python3 tests/oracle/logit_oracle.py $(BUILD)/oracle
+	@for t in $(TEST_BIN); do ROWFIT_ORACLE_DIR=$(BUILD)/oracle $$t || exit 1; done
 
 # tests/bench_readers.c: the readers against the physical limits (inflate +
 # expat with empty handlers; reading the bytes); `make bench` runs it, then

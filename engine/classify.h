@@ -13,7 +13,9 @@
 #include "../io/error.h"
 
 /* Log loss clips p to [CLASSIFY_CLIP, 1 - CLASSIFY_CLIP] so that a row
- * predicted with certainty and wrong costs ln(1e15) = 34.5, not infinity. */
+ * predicted with certainty and wrong costs ln(1e15) = 34.5, not infinity.
+ * The clip is applied to the probability given to the observed class (p for
+ * a yes, 1 - p for a no), which is the same in exact arithmetic. */
 #define CLASSIFY_CLIP 1e-15
 /* Hosmer-Lemeshow: at most this many risk groups (deciles of risk). */
 #define CLASSIFY_HL_GROUPS 10
@@ -24,7 +26,7 @@ typedef struct classify_measures {
     double threshold;
     double accuracy, precision, recall;  /* NaN when undefined */
     double auc;                /* ties count one half; NaN with one class */
-    double brier, logloss;     /* log loss with p clipped to [1e-15, 1-1e-15] */
+    double brier, logloss;     /* p clipped to [1e-15, 1-1e-15] in log loss */
     double hl_stat, hl_pvalue; /* Hosmer-Lemeshow, groups by deciles of risk */
     int hl_groups, hl_df;
 } classify_measures;

@@ -1,0 +1,556 @@
+/*
+ * logistic.c: logistic regression (see logistic.h).
+ *
+ * Method, in order:
+ *  1. The rank decision is linear.c's own: linear_fit on X (the target does
+ *     not enter it) scales each column to unit length by a power of two,
+ *     decides the rank by Householder QR with column pivoting against
+ *     LINEAR_RANK_TOL, and drops zero, constant and collinear terms in job
+ *     order with their reasons. Calling it, rather than copying it, keeps
+ *     the two models' drops identical by construction.
+ *  2. Newton's method as iteratively reweighted least squares (McCullagh &
+ *     Nelder, Generalized Linear Models, 2nd ed., sec. 2.5; Hosmer,
+ *     Lemeshow & Sturdivant, Applied Logistic Regression, 3rd ed., ch. 1):
+ *     weights w = p(1-p), working response z = eta + (y-p)/w. Each step is
+ *     the weighted least squares problem min ||W^1/2 (z - X b)||, solved by
+ *     Householder QR with column pivoting of the sqrt(w)-scaled rows (GSL
+ *     gsl_linalg_QRPT_decomp), never the normal equations X'WX. It is solved
+ *     for the step d = b_new - b, i.e. with right-hand side
+ *     W^1/2 (z - eta) = (y - p) / sqrt(w), which is the same problem and
+ *     does not cancel the large parts of b near convergence; the gradient
+ *     X'(y - p) that decides the answer is accumulated in long double.
+ *  3. Ridge: the penalized log-likelihood is
+ *         loglik(b) - (ridge / 2) * sum_j (s_j b_j)^2
+ *     over the non-intercept kept terms, s_j the standard deviation of
+ *     column j over the fitted rows (divisor n; the root mean square when
+ *     that is 0), so the penalty is on the coefficients of standardized
+ *     inputs and does not depend on units. The Newton step of it is the
+ *     WLS problem above with rows sqrt(ridge) * s_j * e_j appended
+ *     (right-hand side -sqrt(ridge) * s_j * b_j).
+ *  4. Step halving (common practice for Newton on a concave objective):
+ *     when a step lowers the penalized log-likelihood, it is halved, up to
+ *     LOGISTIC_HALVINGS_MAX times; a step that still does not improve ends
+ *     the iterations (not converged).
+ *  5. Convergence: |D_old - D| / (|D| + 0.1) < 1e-12, D the deviance
+ *     (common practice), and max_j |d_j| / max(1, |g_j|) < 1e-10 where g
+ *     and d are the coefficients and the step on the unit-length column
+ *     scale of step 1. At most LOGISTIC_ITER_MAX steps.
+ *  6. Separation (Albert & Anderson, Biometrika 71 (1984) 1-10): the
+ *     maximum likelihood estimate does not exist, Newton's steps stay of
+ *     order one while the fitted probabilities of some rows run to 0 or 1.
+ *     It is declared when the iterations do not converge and some row is
+ *     fitted exactly, |y - p| < SEP_EXACT: complete when every row is,
+ *     quasi-complete otherwise. The iterations stop early once the deviance
+ *     has stopped changing (first rule of 5) for SEP_STALL steps in a row
+ *     with rows fitted exactly while the coefficients still move. The term
+ *     named is the kept non-intercept term with the largest |b_j| * s_j at
+ *     the last iterate: the one that moves the linear predictor most across
+ *     the rows. Per-term results are then NaN, never the diverging values.
+ *  7. Standard errors from the inverse Fisher information (X'WX)^-1 =
+ *     R^-1 R^-T, R from the QR of the final weighted rows (no ridge rows);
+ *     Wald z, normal p value, Wald interval, odds ratios (Hosmer et al.,
+ *     sec. 1.4 and 3.3). With ridge > 0 they are NaN: the classical
+ *     standard errors do not apply to a penalized estimate.
+ */
+#include "logistic.h"
+
+#include <float.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_linalg.h>
+#include <gsl/gsl_matrix.h>
+#include <gsl/gsl_permutation.h>
+#include <gsl/gsl_vector.h>
+
+#define DEV_TOL 1e-12      /* relative change of the deviance */
+#define STEP_TOL 1e-10     /* largest step on the unit-length column scale */
+#define SEP_EXACT 1e-10    /* |y - p| below which a row is fitted exactly */
+#define SEP_STALL 5        /* steps with a still deviance before stopping */
+#define W_MIN 1e-300       /* floor of the weights, so 1/sqrt(w) is finite */
+
+/* log(1 + e^t) without overflow or loss for large |t|. */
+static long double softplus(long double t)
+{
+    return (t > 0 ? t : 0) + log1pl(expl(-fabsl(t)));
+}
+
+/* The log-likelihood of row i: y log p + (1-y) log(1-p), p = 1/(1+e^-eta). */
+static long double row_loglik(double y, long double eta)
+{
+    return y > 0.5 ? -softplus(-eta) : -softplus(eta);
+}
+
+/* Workspace of the iterations over the r kept columns. */
+typedef struct irls {
+    size_t n, p, r, rows;    /* rows = n, plus r with a penalty */
+    const long double *X;
+    const double *y;
+    size_t *col;             /* r: design column of kept column k */
+    double *c;               /* r: power-of-two column scale */
+    double *pen;             /* r: sqrt(ridge) * s_j, 0 for the intercept */
+    long double *eta;        /* n */
+    double *g, *gnew, *d;    /* r: coefficients on the scaled columns, step */
+    gsl_matrix *A;           /* rows x r */
+    gsl_vector *tau, *b, *norm;
+    gsl_permutation *perm;
+} irls;
+
+static void irls_free(irls *w)
+{
+    if (w == NULL)
+        return;
+    free(w->col);
+    free(w->c);
+    free(w->pen);
+    free(w->eta);
+    free(w->g);
+    free(w->gnew);
+    free(w->d);
+    gsl_matrix_free(w->A);
+    gsl_vector_free(w->tau);
+    gsl_vector_free(w->b);
+    gsl_vector_free(w->norm);
+    gsl_permutation_free(w->perm);
+    free(w);
+}
+
+static irls *irls_alloc(size_t n, size_t p, size_t r, int penalized)
+{
+    irls *w = calloc(1, sizeof *w);
+    if (w == NULL)
+        return NULL;
+    w->n = n;
+    w->p = p;
+    w->r = r;
+    w->rows = n + (penalized ? r : 0);
+    w->col = malloc(r * sizeof *w->col);
+    w->c = malloc(r * sizeof *w->c);
+    w->pen = calloc(r, sizeof *w->pen);
+    w->eta = malloc(n * sizeof *w->eta);
+    w->g = calloc(r, sizeof *w->g);
+    w->gnew = calloc(r, sizeof *w->gnew);
+    w->d = calloc(r, sizeof *w->d);
+    w->A = gsl_matrix_alloc(w->rows, r);
+    w->tau = gsl_vector_alloc(r);
+    w->b = gsl_vector_alloc(w->rows);
+    w->norm = gsl_vector_alloc(r);
+    w->perm = gsl_permutation_alloc(r);
+    if (!w->col || !w->c || !w->pen || !w->eta || !w->g || !w->gnew || !w->d
+        || !w->A || !w->tau || !w->b || !w->norm || !w->perm) {
+        irls_free(w);
+        return NULL;
+    }
+    return w;
+}
+
+/* eta for the coefficients g; returns the penalized log-likelihood and
+ * stores the plain one in *ll. */
+static long double irls_eval(irls *w, const double *g, long double *ll)
+{
+    long double sum = 0;
+    for (size_t i = 0; i < w->n; i++) {
+        const long double *row = w->X + i * w->p;
+        long double e = 0;
+        for (size_t k = 0; k < w->r; k++)
+            e += row[w->col[k]] * w->c[k] * g[k];
+        w->eta[i] = e;
+        sum += row_loglik(w->y[i], e);
+    }
+    *ll = sum;
+    long double pen = 0;
+    for (size_t k = 0; k < w->r; k++)
+        pen += (long double)w->pen[k] * g[k] * w->pen[k] * g[k];
+    return sum - pen / 2;
+}
+
+/* Fills A with the sqrt(w)-scaled rows at the current eta (plus the
+ * penalty rows when with_pen) and b with the step's right-hand side, and
+ * factors A. Returns 0, or -1 when GSL fails. */
+static int irls_factor(irls *w, int with_pen)
+{
+    for (size_t i = 0; i < w->n; i++) {
+        long double e = w->eta[i];
+        /* p and 1 - p each from its own exponential: no cancellation */
+        long double pi = 1 / (1 + expl(-e)), qi = 1 / (1 + expl(e));
+        long double wt = pi * qi;
+        if (wt < W_MIN)
+            wt = W_MIN;
+        long double sw = sqrtl(wt);
+        const long double *row = w->X + i * w->p;
+        for (size_t k = 0; k < w->r; k++)
+            gsl_matrix_set(w->A, i, k, (double)(sw * row[w->col[k]] * w->c[k]));
+        long double resid = w->y[i] > 0.5 ? qi : -pi;  /* y - p */
+        gsl_vector_set(w->b, i, (double)(resid / sw));
+    }
+    for (size_t a = w->n; a < w->rows; a++) {
+        size_t k = a - w->n;
+        for (size_t j = 0; j < w->r; j++)
+            gsl_matrix_set(w->A, a, j, j == k && with_pen ? w->pen[k] : 0.0);
+        gsl_vector_set(w->b, a, with_pen ? -w->pen[k] * w->g[k] : 0.0);
+    }
+    int signum;
+    return gsl_linalg_QRPT_decomp(w->A, w->tau, w->perm, &signum, w->norm)
+               ? -1 : 0;
+}
+
+/* The least squares step from the factored A into w->d. A component whose
+ * pivot is negligible (weights underflowing under separation) is left 0. */
+static void irls_step(irls *w)
+{
+    gsl_linalg_QR_QTvec(w->A, w->tau, w->b);
+    double r11 = fabs(gsl_matrix_get(w->A, 0, 0));
+    double *x = w->gnew;  /* scratch, pivoted order */
+    for (size_t kk = w->r; kk-- > 0;) {
+        double rkk = gsl_matrix_get(w->A, kk, kk);
+        if (!(fabs(rkk) > LINEAR_RANK_TOL * r11)) {
+            x[kk] = 0;
+            continue;
+        }
+        long double s = gsl_vector_get(w->b, kk);
+        for (size_t j = kk + 1; j < w->r; j++)
+            s -= (long double)gsl_matrix_get(w->A, kk, j) * x[j];
+        x[kk] = (double)(s / rkk);
+    }
+    for (size_t k = 0; k < w->r; k++)
+        w->d[gsl_permutation_get(w->perm, k)] = x[k];
+}
+
+/* (X'WX)^-1 = R^-1 R^-T from the factored A (no penalty rows), in kept
+ * column order, into cov (r x r). */
+static int irls_covariance(const irls *w, double *cov)
+{
+    size_t r = w->r;
+    gsl_matrix *Ri = gsl_matrix_alloc(r, r);
+    if (Ri == NULL)
+        return -1;
+    for (size_t a = 0; a < r; a++)
+        for (size_t b = 0; b < r; b++)
+            gsl_matrix_set(Ri, a, b, b >= a ? gsl_matrix_get(w->A, a, b) : 0);
+    if (gsl_linalg_tri_upper_invert(Ri)) {
+        gsl_matrix_free(Ri);
+        return -1;
+    }
+    for (size_t a = 0; a < r; a++)
+        for (size_t b = 0; b < r; b++) {
+            long double s = 0;
+            for (size_t k = (a > b ? a : b); k < r; k++)
+                s += (long double)gsl_matrix_get(Ri, a, k) * gsl_matrix_get(Ri, b, k);
+            cov[gsl_permutation_get(w->perm, a) * r
+                + gsl_permutation_get(w->perm, b)] = (double)s;
+        }
+    gsl_matrix_free(Ri);
+    return 0;
+}
+
+void logistic_free(logistic_model *m)
+{
+    if (m == NULL)
+        return;
+    free(m->beta);
+    free(m->se);
+    free(m->z);
+    free(m->pvalue);
+    free(m->low);
+    free(m->high);
+    free(m->odds);
+    free(m->odds_low);
+    free(m->odds_high);
+    free(m->drop);
+    free(m->with);
+    free(m->n_with);
+    free(m->prob);
+    free(m);
+}
+
+static logistic_model *model_alloc(size_t n, size_t p)
+{
+    logistic_model *m = calloc(1, sizeof *m);
+    if (m == NULL)
+        return NULL;
+    double **per[] = {&m->beta, &m->se, &m->z, &m->pvalue, &m->low, &m->high,
+                      &m->odds, &m->odds_low, &m->odds_high};
+    int bad = 0;
+    for (size_t a = 0; a < sizeof per / sizeof per[0]; a++) {
+        *per[a] = malloc(p * sizeof **per[a]);
+        if (*per[a] == NULL)
+            bad = 1;
+        else
+            for (size_t j = 0; j < p; j++)
+                (*per[a])[j] = NAN;
+    }
+    m->drop = calloc(p, sizeof *m->drop);
+    m->with = calloc(p * LINEAR_WITH_MAX, sizeof *m->with);
+    m->n_with = calloc(p, sizeof *m->n_with);
+    m->prob = malloc(n * sizeof *m->prob);
+    if (bad || !m->drop || !m->with || !m->n_with || !m->prob) {
+        logistic_free(m);
+        return NULL;
+    }
+    m->separating_term = -1;
+    return m;
+}
+
+/* Standard deviation of column j over the rows (divisor n), or its root
+ * mean square when the column is constant. */
+static double column_spread(const long double *X, size_t n, size_t p, size_t j)
+{
+    long double s = 0, ss = 0;
+    for (size_t i = 0; i < n; i++)
+        s += X[i * p + j];
+    long double mean = s / n;
+    for (size_t i = 0; i < n; i++)
+        ss += (X[i * p + j] - mean) * (X[i * p + j] - mean);
+    if (ss > 0)
+        return (double)sqrtl(ss / n);
+    return (double)fabsl(mean);
+}
+
+/* Runs the iterations from g = 0. Sets m->iterations, m->converged and
+ * m->separation; returns -1 when GSL fails. */
+static int irls_run(irls *w, logistic_model *m)
+{
+    long double ll, pl = irls_eval(w, w->g, &ll);
+    double dev = (double)(-2 * ll);
+    int stall = 0;
+    m->converged = 0;
+    for (int it = 1; it <= LOGISTIC_ITER_MAX; it++) {
+        m->iterations = it;
+        if (irls_factor(w, 1))
+            return -1;
+        irls_step(w);
+        long double llnew = 0, plnew = 0;
+        double t = 1;
+        int improved = 0;
+        for (int h = 0; h <= LOGISTIC_HALVINGS_MAX; h++, t /= 2) {
+            for (size_t k = 0; k < w->r; k++)
+                w->gnew[k] = w->g[k] + t * w->d[k];
+            plnew = irls_eval(w, w->gnew, &llnew);
+            /* a step that loses no more than rounding counts as no loss */
+            if (plnew >= pl - 1e-15L * (fabsl(pl) + 1)) {
+                improved = 1;
+                break;
+            }
+        }
+        if (!improved) {
+            irls_eval(w, w->g, &ll);  /* back to the last good point */
+            break;
+        }
+        double step = 0;
+        for (size_t k = 0; k < w->r; k++) {
+            step = fmax(step, fabs(w->gnew[k] - w->g[k]) / fmax(1, fabs(w->gnew[k])));
+            w->g[k] = w->gnew[k];
+        }
+        double devnew = (double)(-2 * llnew);
+        int dev_still = fabs(dev - devnew) / (fabs(devnew) + 0.1) < DEV_TOL;
+        dev = devnew;
+        pl = plnew;
+        ll = llnew;
+        if (dev_still && step < STEP_TOL) {
+            m->converged = 1;
+            break;
+        }
+        /* a still deviance with moving coefficients and exactly fitted
+         * rows is separation: waiting longer only inflates them */
+        size_t exact = 0;
+        for (size_t i = 0; dev_still && i < w->n; i++) {
+            long double pi = 1 / (1 + expl(-w->eta[i]));
+            exact += fabsl(w->y[i] - pi) < SEP_EXACT;
+        }
+        stall = exact > 0 ? stall + 1 : 0;
+        if (stall >= SEP_STALL)
+            break;
+    }
+    m->separation = SEPARATION_NONE;
+    if (!m->converged) {
+        size_t exact = 0;
+        for (size_t i = 0; i < w->n; i++) {
+            long double pi = 1 / (1 + expl(-w->eta[i]));
+            exact += fabsl(w->y[i] - pi) < SEP_EXACT;
+        }
+        if (exact == w->n)
+            m->separation = SEPARATION_COMPLETE;
+        else if (exact > 0)
+            m->separation = SEPARATION_QUASI;
+    }
+    return 0;
+}
+
+rf_status logistic_fit(const long double *X, const double *y, size_t n,
+                       size_t p, int intercept, double level, double ridge,
+                       logistic_model **out, rf_error *err)
+{
+    *out = NULL;
+    if (p == 0)
+        return error_set(err, RF_EINPUT, NULL, "the model has no terms");
+    if (p > LINEAR_RANK_MAX)
+        return error_set(err, RF_EINPUT, NULL,
+                         "the model has %zu terms; at most %d are supported",
+                         p, LINEAR_RANK_MAX);
+    if (n < p + 1)
+        return error_set(err, RF_EINPUT, NULL,
+                         "only %zu usable rows for %zu terms: a logistic fit "
+                         "needs at least one row more than it has terms",
+                         n, p);
+    if (!(ridge >= 0) || !isfinite(ridge))
+        return error_set(err, RF_EINPUT, NULL,
+                         "ridge must be a number 0 or more");
+    size_t ones = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (y[i] != 0 && y[i] != 1)
+            return error_set(err, RF_EINPUT, NULL,
+                             "fitted row %zu has a target other than 0 or 1",
+                             i + 1);
+        ones += y[i] == 1;
+        for (size_t j = 0; j < p; j++)
+            if (!isfinite((double)X[i * p + j]))
+                return error_set(err, RF_EINPUT, NULL,
+                                 "fitted row %zu has a non-finite input", i + 1);
+    }
+    if (ones == 0 || ones == n)
+        return error_set(err, RF_EINPUT, NULL,
+                         "the target has one value only (all %zu fitted rows "
+                         "are %s): there is nothing to tell apart",
+                         n, ones ? "the positive class" : "the other class");
+
+    rf_status st = RF_ENOMEM;
+    irls *w = NULL;
+    double *cov = NULL;
+    long double *yl = NULL;
+    linear_model *lm = NULL;
+    logistic_model *m = model_alloc(n, p);
+    if (m == NULL)
+        goto fail;
+    m->n = n;
+    m->p = p;
+    m->intercept = intercept;
+    m->level = level;
+    m->ridge = ridge;
+
+    /* 1. the rank decision of the linear model (its target is irrelevant
+     * to it; y is passed only because linear_fit needs one) */
+    yl = malloc(n * sizeof *yl);
+    if (yl == NULL)
+        goto fail;
+    for (size_t i = 0; i < n; i++)
+        yl[i] = y[i];
+    st = linear_fit(X, yl, n, p, intercept, level, &lm, err);
+    if (st != RF_OK)
+        goto fail;
+    st = RF_ENOMEM;
+    memcpy(m->drop, lm->drop, p * sizeof *m->drop);
+    memcpy(m->with, lm->with, p * LINEAR_WITH_MAX * sizeof *m->with);
+    memcpy(m->n_with, lm->n_with, p * sizeof *m->n_with);
+    size_t r = lm->rank;
+    m->rank = r;
+
+    w = irls_alloc(n, p, r, ridge > 0);
+    cov = malloc(r * r * sizeof *cov);
+    if (w == NULL || cov == NULL)
+        goto fail;
+    w->X = X;
+    w->y = y;
+    double *spread = w->d;  /* scratch until the iterations */
+    for (size_t j = 0, k = 0; j < p; j++) {
+        if (m->drop[j] != LINEAR_KEPT)
+            continue;
+        w->col[k] = j;
+        w->c[k] = lm->scale[j];
+        spread[k] = column_spread(X, n, p, j);
+        /* the penalty row of the scaled coefficient g_k = b_j / c_k:
+         * sqrt(ridge) s_j b_j = sqrt(ridge) s_j c_k g_k */
+        if (ridge > 0 && !(intercept && j == 0))
+            w->pen[k] = sqrt(ridge) * spread[k] * w->c[k];
+        k++;
+    }
+
+    /* 2-6. the iterations */
+    if (irls_run(w, m)) {
+        st = error_set(err, RF_ESYSTEM, NULL, "QR factorization failed");
+        goto fail;
+    }
+
+    /* the term most responsible for a separation */
+    if (m->separation != SEPARATION_NONE) {
+        double best = -1;
+        for (size_t k = 0; k < r; k++) {
+            size_t j = w->col[k];
+            if (intercept && j == 0)
+                continue;
+            double v = fabs(w->g[k] * w->c[k]) * column_spread(X, n, p, j);
+            if (v > best) {
+                best = v;
+                m->separating_term = (long)j;
+            }
+        }
+        if (m->separating_term < 0 && r > 0)
+            m->separating_term = (long)w->col[0];
+    }
+
+    /* measures at the last iterate */
+    long double ll = 0;
+    for (size_t i = 0; i < n; i++) {
+        ll += row_loglik(y[i], w->eta[i]);
+        m->prob[i] = (double)(1 / (1 + expl(-w->eta[i])));
+    }
+    double p1 = (double)ones / (double)n;
+    m->loglik = (double)ll;
+    m->null_loglik = intercept ? ones * log(p1) + (n - ones) * log1p(-p1)
+                               : n * log(0.5);
+    m->deviance = -2 * m->loglik;
+    m->null_deviance = -2 * m->null_loglik;
+    m->aic = m->deviance + 2.0 * r;
+    m->bic = m->deviance + (double)r * log((double)n);
+    m->mcfadden = 1 - m->loglik / m->null_loglik;
+
+    if (m->separation != SEPARATION_NONE && ridge == 0) {
+        st = RF_OK;  /* per-term results stay NaN */
+        goto done;
+    }
+    for (size_t k = 0; k < r; k++) {
+        size_t j = w->col[k];
+        m->beta[j] = w->g[k] * w->c[k];
+        m->odds[j] = exp(m->beta[j]);
+    }
+    if (ridge == 0) {
+        double zc = gsl_cdf_ugaussian_Qinv((1 - level) / 2);
+        if (irls_factor(w, 0) || irls_covariance(w, cov)) {
+            st = error_set(err, RF_ESYSTEM, NULL, "QR factorization failed");
+            goto fail;
+        }
+        for (size_t k = 0; k < r; k++) {
+            size_t j = w->col[k];
+            m->se[j] = sqrt(cov[k * r + k]) * w->c[k];
+            m->z[j] = m->beta[j] / m->se[j];
+            m->pvalue[j] = 2 * gsl_cdf_ugaussian_Q(fabs(m->z[j]));
+            m->low[j] = m->beta[j] - zc * m->se[j];
+            m->high[j] = m->beta[j] + zc * m->se[j];
+            m->odds_low[j] = exp(m->low[j]);
+            m->odds_high[j] = exp(m->high[j]);
+        }
+    }
+    st = RF_OK;
+done:
+    *out = m;
+    m = NULL;
+fail:
+    if (st == RF_ENOMEM)
+        error_nomem(err, NULL);
+    irls_free(w);
+    free(cov);
+    free(yl);
+    linear_free(lm);
+    logistic_free(m);
+    return st;
+}
+
+double logistic_predict(const logistic_model *m, const long double *x)
+{
+    long double e = 0;
+    for (size_t j = 0; j < m->p; j++)
+        if (m->drop[j] == LINEAR_KEPT)
+            e += m->beta[j] * x[j];
+    return (double)(1 / (1 + expl(-e)));
+}
