@@ -392,13 +392,17 @@ static double cond_estimate(const qrfac *q)
 /* (A'A)^-1 = R^-1 R^-T in pivoted order into cov (r x r). */
 static int covariance_from_r(const qrfac *q, double *cov)
 {
-    size_t r = q->r;
+    return linear_cov_from_r(q->QR, q->r, cov);
+}
+
+int linear_cov_from_r(const gsl_matrix *QR, size_t r, double *cov)
+{
     gsl_matrix *Ri = gsl_matrix_alloc(r, r);
     if (Ri == NULL)
         return -1;
     for (size_t a = 0; a < r; a++)
         for (size_t b = 0; b < r; b++)
-            gsl_matrix_set(Ri, a, b, b >= a ? gsl_matrix_get(q->QR, a, b) : 0);
+            gsl_matrix_set(Ri, a, b, b >= a ? gsl_matrix_get(QR, a, b) : 0);
     if (gsl_linalg_tri_upper_invert(Ri)) {
         gsl_matrix_free(Ri);
         return -1;

@@ -11,6 +11,8 @@
 
 #include <stddef.h>
 
+#include <gsl/gsl_matrix.h>
+
 #include "../io/error.h"
 
 /* Why a term has no estimate. */
@@ -82,6 +84,12 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
                      int intercept, double level, linear_model **out,
                      rf_error *err);
 void linear_free(linear_model *m);  /* accepts NULL */
+
+/* (R'R)^-1 = R^-1 R^-T, with R the upper triangle in the first r rows and
+ * columns of QR (a GSL QR factor), into cov (r x r, R's column order), the
+ * products summed in extended precision. 0, or -1 on no memory or a
+ * singular R. Shared by the models that factor with QR. */
+int linear_cov_from_r(const gsl_matrix *QR, size_t r, double *cov);
 
 /* Correct significant digits to expect in the coefficients, from the
  * condition number and extended-precision refinement: floor(-log10(cond *

@@ -223,25 +223,16 @@ static void irls_step(irls *w)
 static int irls_covariance(const irls *w, double *cov)
 {
     size_t r = w->r;
-    gsl_matrix *Ri = gsl_matrix_alloc(r, r);
-    if (Ri == NULL)
-        return -1;
-    for (size_t a = 0; a < r; a++)
-        for (size_t b = 0; b < r; b++)
-            gsl_matrix_set(Ri, a, b, b >= a ? gsl_matrix_get(w->A, a, b) : 0);
-    if (gsl_linalg_tri_upper_invert(Ri)) {
-        gsl_matrix_free(Ri);
+    double *piv = malloc((r ? r * r : 1) * sizeof *piv);
+    if (piv == NULL || linear_cov_from_r(w->A, r, piv)) {
+        free(piv);
         return -1;
     }
     for (size_t a = 0; a < r; a++)
-        for (size_t b = 0; b < r; b++) {
-            long double s = 0;
-            for (size_t k = (a > b ? a : b); k < r; k++)
-                s += (long double)gsl_matrix_get(Ri, a, k) * gsl_matrix_get(Ri, b, k);
+        for (size_t b = 0; b < r; b++)
             cov[gsl_permutation_get(w->perm, a) * r
-                + gsl_permutation_get(w->perm, b)] = (double)s;
-        }
-    gsl_matrix_free(Ri);
+                + gsl_permutation_get(w->perm, b)] = piv[a * r + b];
+    free(piv);
     return 0;
 }
 
