@@ -224,7 +224,9 @@ static int irls_covariance(const irls *w, double *cov)
 {
     size_t r = w->r;
     double *piv = malloc((r ? r * r : 1) * sizeof *piv);
-    if (piv == NULL || linear_cov_from_r(w->A, r, piv)) {
+    if (piv == NULL)
+        return -2;   /* no memory, told apart from a singular R */
+    if (linear_cov_from_r(w->A, r, piv)) {
         free(piv);
         return -1;
     }
@@ -507,7 +509,12 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
     }
     if (ridge == 0) {
         double zc = gsl_cdf_ugaussian_Qinv((1 - level) / 2);
-        if (irls_factor(w, 0) || irls_covariance(w, cov)) {
+        int cs = irls_factor(w, 0) ? -1 : irls_covariance(w, cov);
+        if (cs == -2) {
+            st = error_nomem(err, NULL);
+            goto fail;
+        }
+        if (cs != 0) {
             st = error_set(err, RF_ESYSTEM, NULL, "QR factorization failed");
             goto fail;
         }

@@ -43,10 +43,13 @@
 
 #include <gsl/gsl_errno.h>
 
+#include "../engine/classify.h"
 #include "../engine/design.h"
 #include "../engine/formula.h"
 #include "../engine/job.h"
+#include "../engine/gradient.h"
 #include "../engine/linear.h"
+#include "../engine/logistic.h"
 #include "../engine/peek.h"
 #include "../engine/run.h"
 #include "../io/csv.h"
@@ -726,6 +729,99 @@ static void test_oom_linear_fit_reports_every_failure(void **state)
     assert_true(oom_sweep("linear_fit", run_linear, &c) > 0);
 }
 
+/* ------------------------------------------- logistic, gradient, classify */
+
+/* Twelve invented applicants: an intercept, a score and a duplicate of it
+ * (dropped), outcomes overlapping so the fit is finite. */
+typedef struct yesno_ctx {
+    long double X[12 * 3];
+    double y[12];
+} yesno_ctx;
+
+static void yesno_fill(yesno_ctx *c)
+{
+    static const double score[12] = { 41.5, 55.25, 62.0, 48.75, 71.5, 58.0,
+                                       66.25, 44.0, 79.5, 52.5, 69.0, 60.75 };
+    static const double done[12] = { 0, 1, 1, 0, 1, 0, 1, 0, 1, 1, 0, 1 };
+    for (size_t i = 0; i < 12; i++) {
+        c->X[i * 3 + 0] = 1;
+        c->X[i * 3 + 1] = score[i];
+        c->X[i * 3 + 2] = 2.0L * score[i];
+        c->y[i] = done[i];
+    }
+}
+
+static rf_status run_logistic(void *ctx, rf_error *err)
+{
+    const yesno_ctx *c = ctx;
+    logistic_model *m = NULL;
+    rf_status st = logistic_fit(c->X, c->y, 12, 3, 1, 0.95, 0, &m, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(m);
+    } else {
+        assert_int_equal(m->rank, 2);
+        assert_true(m->converged);
+    }
+    logistic_free(m);
+    return st;
+}
+
+static void test_oom_logistic_fit_reports_every_failure(void **state)
+{
+    (void)state;
+    yesno_ctx c;
+    yesno_fill(&c);
+    assert_true(oom_sweep("logistic_fit", run_logistic, &c) > 0);
+}
+
+static rf_status run_gradient(void *ctx, rf_error *err)
+{
+    const yesno_ctx *c = ctx;
+    gradient_model *m = NULL;
+    /* the duplicate column is left out: gradient_fit does not test
+     * collinearity (its callers pass the terms the exact fit kept) */
+    long double X[12 * 2];
+    for (size_t i = 0; i < 12; i++) {
+        X[i * 2] = c->X[i * 3];
+        X[i * 2 + 1] = c->X[i * 3 + 1];
+    }
+    rf_status st = gradient_fit(X, c->y, 12, 2, 1, 1, 0, 0, 0, &m, err);
+    oom_disarm();
+    if (st != RF_OK)
+        assert_null(m);
+    gradient_free(m);
+    return st;
+}
+
+static void test_oom_gradient_fit_reports_every_failure(void **state)
+{
+    (void)state;
+    yesno_ctx c;
+    yesno_fill(&c);
+    assert_true(oom_sweep("gradient_fit", run_gradient, &c) > 0);
+}
+
+static rf_status run_classify(void *ctx, rf_error *err)
+{
+    const yesno_ctx *c = ctx;
+    double p[12];
+    for (size_t i = 0; i < 12; i++)
+        p[i] = (double)(c->X[i * 3 + 1] / 100.0L);
+    classify_measures cm;
+    rf_status st = classify_measure(c->y, p, 12, 0.5, &cm, err);
+    oom_disarm();
+    return st;
+}
+
+static void test_oom_classify_reports_every_failure(void **state)
+{
+    (void)state;
+    yesno_ctx c;
+    yesno_fill(&c);
+    assert_true(oom_sweep("classify_measure", run_classify, &c) > 0);
+}
+
 /* ------------------------------------------------------------ run_job */
 
 /* A whole job: read the job and two CSV files, a derive, a category, a
@@ -1221,6 +1317,9 @@ int main(void)
             test_oom_design_build_reports_every_failure, design_setup,
             design_teardown),
         cmocka_unit_test(test_oom_linear_fit_reports_every_failure),
+        cmocka_unit_test(test_oom_logistic_fit_reports_every_failure),
+        cmocka_unit_test(test_oom_gradient_fit_reports_every_failure),
+        cmocka_unit_test(test_oom_classify_reports_every_failure),
         cmocka_unit_test_setup_teardown(
             test_oom_run_job_reports_every_failure, folder_setup,
             folder_teardown),
