@@ -78,22 +78,24 @@ SHEET_SRC  := io/grid.c io/csv.c io/table.c io/error.c
 
 build-fuzz/fuzz_csv: tests/fuzz/fuzz_csv.c io/csv.c io/table.c io/error.c
 	@mkdir -p $(dir $@)
-	clang $(FUZZ_FLAGS) -o $@ $^ -lm
+	clang $(FUZZ_FLAGS) -o $@ $(filter %.c,$^) -lm
 build-fuzz/fuzz_job: tests/fuzz/fuzz_job.c engine/job.c engine/formula.c io/table.c io/error.c
 	@mkdir -p $(dir $@)
-	clang $(FUZZ_FLAGS) -o $@ $^ -lm
+	clang $(FUZZ_FLAGS) -o $@ $(filter %.c,$^) -lm
 build-fuzz/fuzz_formula: tests/fuzz/fuzz_formula.c engine/formula.c io/table.c io/error.c
 	@mkdir -p $(dir $@)
-	clang $(FUZZ_FLAGS) -o $@ $^ -lm
+	clang $(FUZZ_FLAGS) -o $@ $(filter %.c,$^) -lm
 build-fuzz/fuzz_xlsx: tests/fuzz/fuzz_xlsx.c io/xlsx.c io/zipxml.c $(SHEET_SRC)
 	@mkdir -p $(dir $@)
-	clang $(FUZZ_FLAGS) -o $@ $^ -lminizip -lexpat -lz -lm
+	clang $(FUZZ_FLAGS) -o $@ $(filter %.c,$^) -lminizip -lexpat -lz -lm
 build-fuzz/fuzz_ods: tests/fuzz/fuzz_ods.c io/ods.c io/zipxml.c $(SHEET_SRC)
 	@mkdir -p $(dir $@)
-	clang $(FUZZ_FLAGS) -o $@ $^ -lminizip -lexpat -lz -lm
+	clang $(FUZZ_FLAGS) -o $@ $(filter %.c,$^) -lminizip -lexpat -lz -lm
 build-fuzz/fuzz_xls: tests/fuzz/fuzz_xls.c io/xls.c $(SHEET_SRC)
 	@mkdir -p $(dir $@)
-	clang $(FUZZ_FLAGS) -o $@ $^ -lfreexl -lm
+	clang $(FUZZ_FLAGS) -o $@ $(filter %.c,$^) -lfreexl -lm
+
+$(FUZZ_BIN): tests/fuzz/fuzzutil.h
 
 fuzz: $(FUZZ_BIN)
 	@for h in $(FUZZ_NAMES); do \

@@ -18,48 +18,12 @@
 #include "../../io/csv.h"
 #include "../../io/table.h"
 
+#define FUZZ_NAME "fuzz_csv"
+#include "fuzzutil.h"
+
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 
 /* One in-memory file for the whole process; csv_read opens it by path. */
-static int fd = -1;
-static char path[64];
-
-static void check(int ok, const char *what)
-{
-    if (!ok) {
-        fprintf(stderr, "fuzz_csv: invariant broken: %s\n", what);
-        abort();
-    }
-}
-
-static void walk(const table *t)
-{
-    char buf[256];
-    size_t nr = table_rows(t), nc = table_cols(t);
-    check(nc > 0, "a table with no column");
-    for (size_t c = 0; c < nc; c++) {
-        const char *name = table_column_name(t, c);
-        check(name != NULL, "a column without a name");
-        check(table_find_column(t, name) == (long)c, "find_column");
-        (void)table_kind_name(table_column_kind(t, c));
-        check(table_column_blanks(t, c) <= nr, "more blanks than rows");
-    }
-    for (size_t r = 0; r < nr; r++) {
-        (void)table_row_source(t, r);
-        table_where(t, r, (size_t)-1, buf, sizeof buf);
-        for (size_t c = 0; c < nc; c++) {
-            cell_type ty = table_cell_type(t, r, c);
-            const char *s = table_cell_text(t, r, c);
-            if (ty == CELL_TEXT || ty == CELL_ERROR)
-                check(s != NULL, "a text cell without text");
-            else
-                (void)table_cell_number(t, r, c);
-            table_cell_show(t, r, c, buf, sizeof buf);
-            check(memchr(buf, '\0', sizeof buf) != NULL, "cell_show");
-            table_where(t, r, c, buf, sizeof buf);
-        }
-    }
-}
 
 static void read_once(const csv_options *opt)
 {
@@ -85,19 +49,7 @@ static void read_once(const csv_options *opt)
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
     static const char delims[] = { 0, ',', ';', '\t', '|' };
-    if (fd < 0) {
-        fd = memfd_create("fuzz.csv", 0);
-        if (fd < 0) {
-            perror("memfd_create");
-            abort();
-        }
-        snprintf(path, sizeof path, "/proc/self/fd/%d", fd);
-    }
-    if (ftruncate(fd, 0) != 0
-        || (size > 0 && pwrite(fd, data, size, 0) != (ssize_t)size)) {
-        perror("fuzz_csv: memfd");
-        abort();
-    }
+    fuzz_write(data, size);
     csv_options opt = { 0, 0 };
     read_once(&opt);
     if (size >= 2) {

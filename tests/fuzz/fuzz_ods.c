@@ -23,41 +23,11 @@
 #include "../../io/ods.h"
 #include "../../io/table.h"
 
+#define FUZZ_NAME "fuzz_ods"
+#include "fuzzutil.h"
+
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 
-static int fd = -1;
-static char path[64];
-
-static void check(int ok, const char *what)
-{
-    if (!ok) {
-        fprintf(stderr, "fuzz_ods: invariant broken: %s\n", what);
-        abort();
-    }
-}
-
-static void walk(const table *t)
-{
-    char buf[256];
-    size_t nr = table_rows(t), nc = table_cols(t);
-    check(nc > 0, "a table with no column");
-    for (size_t c = 0; c < nc; c++) {
-        check(table_column_name(t, c) != NULL, "a column without a name");
-        check(table_column_blanks(t, c) <= nr, "more blanks than rows");
-    }
-    for (size_t r = 0; r < nr; r++) {
-        for (size_t c = 0; c < nc; c++) {
-            cell_type ty = table_cell_type(t, r, c);
-            if (ty == CELL_TEXT || ty == CELL_ERROR)
-                check(table_cell_text(t, r, c) != NULL,
-                      "a text cell without text");
-            else
-                (void)table_cell_number(t, r, c);
-            table_cell_show(t, r, c, buf, sizeof buf);
-            table_where(t, r, c, buf, sizeof buf);
-        }
-    }
-}
 
 static void read_once(const char *sheet, uint32_t header)
 {
@@ -126,14 +96,7 @@ static void write_package(const uint8_t *data, size_t size)
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
-    if (fd < 0) {
-        fd = memfd_create("fuzz.ods", 0);
-        if (fd < 0) {
-            perror("memfd_create");
-            abort();
-        }
-        snprintf(path, sizeof path, "/proc/self/fd/%d", fd);
-    }
+    fuzz_memfd();
     if (size > ((size_t)1 << 20))
         return 0;   /* content.xml of a MiB says all a small one can */
     if (ftruncate(fd, 0) != 0) {

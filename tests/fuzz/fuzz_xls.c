@@ -18,6 +18,9 @@
 
 #include "../../io/xls.h"
 
+#define FUZZ_NAME "fuzz_xls"
+#include "fuzzutil.h"
+
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 const char *__lsan_default_suppressions(void);
 
@@ -29,38 +32,6 @@ const char *__lsan_default_suppressions(void)
     return "leak:libfreexl.so\n";
 }
 
-static int fd = -1;
-static char path[64];
-
-static void check(int ok, const char *what)
-{
-    if (!ok) {
-        fprintf(stderr, "fuzz_xls: invariant broken: %s\n", what);
-        abort();
-    }
-}
-
-static void walk(const table *t)
-{
-    char buf[256];
-    size_t nr = table_rows(t), nc = table_cols(t);
-    check(nc > 0, "a table with no column");
-    for (size_t c = 0; c < nc; c++) {
-        check(table_column_name(t, c) != NULL, "a column without a name");
-        check(table_column_blanks(t, c) <= nr, "more blanks than rows");
-    }
-    for (size_t r = 0; r < nr; r++)
-        for (size_t c = 0; c < nc; c++) {
-            cell_type ty = table_cell_type(t, r, c);
-            if (ty == CELL_TEXT || ty == CELL_ERROR)
-                check(table_cell_text(t, r, c) != NULL,
-                      "a text cell without text");
-            else
-                (void)table_cell_number(t, r, c);
-            table_cell_show(t, r, c, buf, sizeof buf);
-            table_where(t, r, c, buf, sizeof buf);
-        }
-}
 
 static void read_once(const char *sheet, uint32_t header)
 {
@@ -83,19 +54,7 @@ static void read_once(const char *sheet, uint32_t header)
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
-    if (fd < 0) {
-        fd = memfd_create("fuzz.xls", 0);
-        if (fd < 0) {
-            perror("memfd_create");
-            abort();
-        }
-        snprintf(path, sizeof path, "/proc/self/fd/%d", fd);
-    }
-    if (ftruncate(fd, 0) != 0
-        || (size > 0 && pwrite(fd, data, size, 0) != (ssize_t)size)) {
-        perror("fuzz_xls: memfd");
-        abort();
-    }
+    fuzz_write(data, size);
     grid_sheet *s = NULL;
     size_t n = 0;
     rf_error e;

@@ -17,31 +17,11 @@
 
 #include "../../io/xlsx.h"
 
+#define FUZZ_NAME "fuzz_xlsx"
+#include "fuzzutil.h"
+
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 
-static int fd = -1;
-static char path[64];
-
-static void check(int ok, const char *what)
-{
-    if (!ok) {
-        fprintf(stderr, "fuzz_xlsx: invariant broken: %s\n", what);
-        abort();
-    }
-}
-
-static void walk(const table *t)
-{
-    char buf[256];
-    for (size_t r = 0; r < table_rows(t); r++)
-        for (size_t c = 0; c < table_cols(t); c++) {
-            cell_type ty = table_cell_type(t, r, c);
-            if (ty == CELL_TEXT || ty == CELL_ERROR)
-                check(table_cell_text(t, r, c) != NULL, "text cell");
-            table_cell_show(t, r, c, buf, sizeof buf);
-            table_where(t, r, c, buf, sizeof buf);
-        }
-}
 
 static void read_once(const char *sheet, uint32_t header)
 {
@@ -63,19 +43,7 @@ static void read_once(const char *sheet, uint32_t header)
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
-    if (fd < 0) {
-        fd = memfd_create("fuzz.xlsx", 0);
-        if (fd < 0) {
-            perror("memfd_create");
-            abort();
-        }
-        snprintf(path, sizeof path, "/proc/self/fd/%d", fd);
-    }
-    if (ftruncate(fd, 0) != 0
-        || (size > 0 && pwrite(fd, data, size, 0) != (ssize_t)size)) {
-        perror("fuzz_xlsx: memfd");
-        abort();
-    }
+    fuzz_write(data, size);
     grid_sheet *s = NULL;
     size_t n = 0;
     rf_error e;
