@@ -583,15 +583,29 @@ static rf_status code_classes(design *d, const job *j, intern *tlab,
     char where[ERROR_WHERE_MAX], list[ERROR_MESSAGE_MAX / 2];
     size_t pos = 0;
     list[0] = '\0';
-    for (size_t l = 0, shown = 0; l < nl && shown < 10; l++)
-        if (count[l]) {
-            pos += (size_t)snprintf(list + pos, sizeof list - pos,
-                                    "%s'%.60s' (%zu)", shown ? ", " : "",
-                                    tlab->s[l], count[l]);
-            shown++;
-            if (pos >= sizeof list)
-                break;
+    /* the most frequent values first (ties in order of appearance): ten
+     * passes over the values, each taking the largest count below the
+     * last one shown */
+    size_t last_count = (size_t)-1, last_l = 0;
+    for (size_t shown = 0; shown < 10 && shown < used && pos < sizeof list;
+         shown++) {
+        size_t best = nl;
+        for (size_t l = 0; l < nl; l++) {
+            int after = count[l] < last_count
+                        || (count[l] == last_count && l > last_l);
+            if (count[l] && after && (best == nl || count[l] > count[best]))
+                best = l;
         }
+        if (best == nl)
+            break;
+        pos += (size_t)snprintf(list + pos, sizeof list - pos,
+                                "%s'%.60s' (%zu)", shown ? ", " : "",
+                                tlab->s[best], count[best]);
+        last_count = count[best];
+        last_l = best;
+    }
+    if (used > 10 && pos < sizeof list)
+        snprintf(list + pos, sizeof list - pos, " and %zu more", used - 10);
     snprintf(where, sizeof where, "%s:%d", j->file, j->target.line);
     rf_status st = RF_OK;
     if (used != 2) {

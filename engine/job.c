@@ -1084,7 +1084,7 @@ static int job_misapplied(const job *j, char *msg, size_t len)
  */
 static int job_unavailable(const job *j, char *what, size_t len)
 {
-    if (j->model == MODEL_LOGISTIC || j->model == MODEL_NETWORK) {
+    if (j->model == MODEL_NETWORK) {
         snprintf(what, len, "model %s", job_model_name(j->model));
         return j->model_line;
     }
@@ -1092,39 +1092,13 @@ static int job_unavailable(const job *j, char *what, size_t len)
         snprintf(what, len, "ridge auto");
         return j->ridge_line;
     }
-    if (j->ridge_line && j->ridge != 0) {
-        snprintf(what, len, "ridge other than 0");
+    /* the exact linear solver has no penalty yet; gradient descent and
+     * the logistic model have one */
+    if (j->ridge_line && j->ridge != 0 && j->model == MODEL_LINEAR
+        && j->solver != SOLVER_GRADIENT) {
+        snprintf(what, len, "ridge with model linear and solver exact (use "
+                 "solver gradient for a penalised linear fit)");
         return j->ridge_line;
-    }
-    if (j->solver == SOLVER_GRADIENT || j->solver == SOLVER_LBFGS
-        || j->solver == SOLVER_ADAM) {
-        snprintf(what, len, "solver %s", j->solver == SOLVER_GRADIENT
-                 ? "gradient" : j->solver == SOLVER_LBFGS ? "lbfgs" : "adam");
-        return j->solver_line;
-    }
-    if (j->positive_line) {
-        snprintf(what, len, "positive");
-        return j->positive_line;
-    }
-    if (j->threshold_line) {
-        snprintf(what, len, "threshold");
-        return j->threshold_line;
-    }
-    if (j->hidden_line) {
-        snprintf(what, len, "hidden");
-        return j->hidden_line;
-    }
-    if (j->restarts_line) {
-        snprintf(what, len, "restarts");
-        return j->restarts_line;
-    }
-    if (j->rate_line) {
-        snprintf(what, len, "rate");
-        return j->rate_line;
-    }
-    if (j->epochs_line) {
-        snprintf(what, len, "epochs");
-        return j->epochs_line;
     }
     if (j->n_reports > 0) {
         snprintf(what, len, "report %s", j->reports[0].kind);

@@ -389,6 +389,69 @@ static double cond_estimate(const qrfac *q)
     return rcond > 0 ? 1.0 / rcond : INFINITY;
 }
 
+/* Residuals of the coefficients in m->beta (rounded to double, summed in
+ * extended precision) and every fit measure that follows from them. */
+static void residual_measures(linear_model *m, const long double *X,
+                              const long double *y)
+{
+    size_t n = m->n, p = m->p, rank = m->rank;
+    int intercept = m->intercept;
+    double level = m->level;
+    /* residuals of the rounded coefficients, in extended precision */
+    long double rss = 0, sae = 0, sy = 0;
+    for (size_t i = 0; i < n; i++) {
+        long double e = y[i];
+        for (size_t j = 0; j < p; j++)
+            if (m->drop[j] == LINEAR_KEPT)
+                e -= X[i * p + j] * m->beta[j];
+        m->residual[i] = (double)e;
+        rss += e * e;
+        sae += fabsl(e);
+        sy += y[i];
+    }
+    long double tss = 0, yy = 0, ybar = intercept ? sy / n : 0;
+    for (size_t i = 0; i < n; i++) {
+        tss += (y[i] - ybar) * (y[i] - ybar);
+        yy += y[i] * y[i];
+    }
+    /* An exact fit leaves residuals at the rounding level of y (1e-46 on a
+     * line through its points), and a t of 1e46 from them is noise: below
+     * (EXACT_FIT_ULPS ulps of y)^2 the fit is exact, and says so. */
+    if (rss <= yy * (EXACT_FIT_ULPS * DBL_EPSILON) * (EXACT_FIT_ULPS * DBL_EPSILON))
+        rss = sae = 0;
+
+    /* measures */
+    double dfr = (double)(n - rank);
+    double dfm = (double)(intercept ? rank - 1 : rank);
+    m->df_resid = dfr;
+    m->df_model = dfm;
+    m->rss = (double)rss;
+    m->tss = (double)tss;
+    m->sigma = sqrt((double)(rss / dfr));
+    m->rmse = sqrt((double)(rss / n));
+    m->mae = (double)(sae / n);
+    m->r2 = tss > 0 ? (double)(1 - rss / tss) : NAN;
+    m->adj_r2 = tss > 0 ? (double)(1 - (rss / dfr) / (tss / (n - (intercept ? 1 : 0))))
+                        : NAN;
+    if (dfm > 0 && tss > 0) {
+        long double msr = (tss - rss) / dfm, mse = rss / dfr;
+        m->fstat = mse > 0 ? (double)(msr / mse) : INFINITY;
+        m->fpvalue = isfinite(m->fstat) ? gsl_cdf_fdist_Q(m->fstat, dfm, dfr)
+                                        : NAN;
+    } else {
+        m->fstat = m->fpvalue = NAN;
+    }
+    /* Gaussian log-likelihood at the ML variance RSS/n; k counts the
+     * variance as a parameter (Akaike 1974; Schwarz 1978). */
+    double kpar = (double)rank + 1;
+    m->loglik = rss > 0 ? -0.5 * n * (log(2 * 3.14159265358979323846 * (double)(rss / n)) + 1)
+                        : INFINITY;
+    m->aic = -2 * m->loglik + 2 * kpar;
+    m->bic = -2 * m->loglik + kpar * log((double)n);
+    m->tcrit = gsl_cdf_tdist_Qinv((1 - level) / 2, dfr);
+
+}
+
 /* (A'A)^-1 = R^-1 R^-T in pivoted order into cov (r x r). */
 static int covariance_from_r(const qrfac *q, double *cov)
 {
@@ -554,27 +617,7 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
     for (size_t k = 0; k < rank; k++)
         m->beta[q->col[k]] = (double)(xs[k] * m->scale[q->col[k]]);
 
-    /* residuals of the rounded coefficients, in extended precision */
-    long double rss = 0, sae = 0, sy = 0;
-    for (size_t i = 0; i < n; i++) {
-        long double e = y[i];
-        for (size_t k = 0; k < rank; k++)
-            e -= X[i * p + q->col[k]] * m->beta[q->col[k]];
-        m->residual[i] = (double)e;
-        rss += e * e;
-        sae += fabsl(e);
-        sy += y[i];
-    }
-    long double tss = 0, yy = 0, ybar = intercept ? sy / n : 0;
-    for (size_t i = 0; i < n; i++) {
-        tss += (y[i] - ybar) * (y[i] - ybar);
-        yy += y[i] * y[i];
-    }
-    /* An exact fit leaves residuals at the rounding level of y (1e-46 on a
-     * line through its points), and a t of 1e46 from them is noise: below
-     * (EXACT_FIT_ULPS ulps of y)^2 the fit is exact, and says so. */
-    if (rss <= yy * (EXACT_FIT_ULPS * DBL_EPSILON) * (EXACT_FIT_ULPS * DBL_EPSILON))
-        rss = sae = 0;
+    residual_measures(m, X, y);
 
     /* Covariance of the scaled coefficients, (A'A)^-1 = R^-1 R^-T. Its
      * relative error grows with the condition number, so past
@@ -594,37 +637,8 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
         }
     }
 
-    /* 5. measures */
-    double dfr = (double)(n - rank);
-    double dfm = (double)(intercept ? rank - 1 : rank);
-    m->df_resid = dfr;
-    m->df_model = dfm;
-    m->rss = (double)rss;
-    m->tss = (double)tss;
-    m->sigma = sqrt((double)(rss / dfr));
-    m->rmse = sqrt((double)(rss / n));
-    m->mae = (double)(sae / n);
-    m->r2 = tss > 0 ? (double)(1 - rss / tss) : NAN;
-    m->adj_r2 = tss > 0 ? (double)(1 - (rss / dfr) / (tss / (n - (intercept ? 1 : 0))))
-                        : NAN;
-    if (dfm > 0 && tss > 0) {
-        long double msr = (tss - rss) / dfm, mse = rss / dfr;
-        m->fstat = mse > 0 ? (double)(msr / mse) : INFINITY;
-        m->fpvalue = isfinite(m->fstat) ? gsl_cdf_fdist_Q(m->fstat, dfm, dfr)
-                                        : NAN;
-    } else {
-        m->fstat = m->fpvalue = NAN;
-    }
-    /* Gaussian log-likelihood at the ML variance RSS/n; k counts the
-     * variance as a parameter (Akaike 1974; Schwarz 1978). */
-    double kpar = (double)rank + 1;
-    m->loglik = rss > 0 ? -0.5 * n * (log(2 * 3.14159265358979323846 * (double)(rss / n)) + 1)
-                        : INFINITY;
-    m->aic = -2 * m->loglik + 2 * kpar;
-    m->bic = -2 * m->loglik + kpar * log((double)n);
-    m->tcrit = gsl_cdf_tdist_Qinv((1 - level) / 2, dfr);
-
-    double s2 = (double)(rss / dfr);
+    double dfr = m->df_resid;
+    double s2 = m->rss / dfr;
     for (size_t k = 0; k < rank; k++) {
         size_t j = q->col[k];
         /* scale outside the root: squared, 2^-997 would underflow */
@@ -661,6 +675,17 @@ fail:
     free(zres);
     linear_free(m);
     return st;
+}
+
+void linear_set_beta(linear_model *m, const long double *X,
+                     const long double *y, const double *beta)
+{
+    for (size_t j = 0; j < m->p; j++) {
+        m->beta[j] = m->drop[j] == LINEAR_KEPT ? beta[j] : NAN;
+        m->se[j] = m->t[j] = m->pvalue[j] = m->low[j] = m->high[j] = NAN;
+    }
+    residual_measures(m, X, y);
+    m->tcrit = NAN;   /* no intervals: they belong to the exact solution */
 }
 
 int linear_accurate_digits(const linear_model *m)

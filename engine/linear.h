@@ -85,6 +85,15 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
                      rf_error *err);
 void linear_free(linear_model *m);  /* accepts NULL */
 
+/* Replaces the coefficients with beta (p values from another solver of the
+ * same problem, such as gradient descent; entries of dropped terms are
+ * ignored) and recomputes the residuals and every fit measure from them.
+ * What belongs to the least-squares solution alone is cleared to NaN:
+ * standard errors, t, p values, intervals, and linear_predict's low and
+ * high. X and y as given to linear_fit. */
+void linear_set_beta(linear_model *m, const long double *X,
+                     const long double *y, const double *beta);
+
 /* (R'R)^-1 = R^-1 R^-T, with R the upper triangle in the first r rows and
  * columns of QR (a GSL QR factor), into cov (r x r, R's column order), the
  * products summed in extended precision. 0, or -1 on no memory or a

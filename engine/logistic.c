@@ -301,6 +301,29 @@ static double column_spread(const long double *X, size_t n, size_t p, size_t j)
     return (double)fabsl(mean);
 }
 
+/* The fitted probabilities and the likelihood measures of the linear
+ * predictors eta (n values). */
+static void eta_measures(logistic_model *m, const double *y,
+                         const long double *eta)
+{
+    size_t n = m->n, ones = 0;
+    long double ll = 0;
+    for (size_t i = 0; i < n; i++) {
+        ll += row_loglik(y[i], eta[i]);
+        m->prob[i] = (double)(1 / (1 + expl(-eta[i])));
+        ones += y[i] == 1;
+    }
+    double p1 = (double)ones / (double)n;
+    m->loglik = (double)ll;
+    m->null_loglik = m->intercept ? ones * log(p1) + (n - ones) * log1p(-p1)
+                                  : n * log(0.5);
+    m->deviance = -2 * m->loglik;
+    m->null_deviance = -2 * m->null_loglik;
+    m->aic = m->deviance + 2.0 * m->rank;
+    m->bic = m->deviance + (double)m->rank * log((double)n);
+    m->mcfadden = 1 - m->loglik / m->null_loglik;
+}
+
 /* Runs the iterations from g = 0. Sets m->iterations, m->converged and
  * m->separation; returns -1 when GSL fails. */
 static int irls_run(irls *w, logistic_model *m)
@@ -483,20 +506,7 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
     }
 
     /* measures at the last iterate */
-    long double ll = 0;
-    for (size_t i = 0; i < n; i++) {
-        ll += row_loglik(y[i], w->eta[i]);
-        m->prob[i] = (double)(1 / (1 + expl(-w->eta[i])));
-    }
-    double p1 = (double)ones / (double)n;
-    m->loglik = (double)ll;
-    m->null_loglik = intercept ? ones * log(p1) + (n - ones) * log1p(-p1)
-                               : n * log(0.5);
-    m->deviance = -2 * m->loglik;
-    m->null_deviance = -2 * m->null_loglik;
-    m->aic = m->deviance + 2.0 * r;
-    m->bic = m->deviance + (double)r * log((double)n);
-    m->mcfadden = 1 - m->loglik / m->null_loglik;
+    eta_measures(m, y, w->eta);
 
     if (m->separation != SEPARATION_NONE && ridge == 0) {
         st = RF_OK;  /* per-term results stay NaN */
@@ -551,4 +561,29 @@ double logistic_predict(const logistic_model *m, const long double *x)
         if (m->drop[j] == LINEAR_KEPT)
             e += m->beta[j] * x[j];
     return (double)(1 / (1 + expl(-e)));
+}
+
+rf_status logistic_set_beta(logistic_model *m, const long double *X,
+                            const double *y, const double *beta,
+                            rf_error *err)
+{
+    long double *eta = malloc((m->n ? m->n : 1) * sizeof *eta);
+    if (eta == NULL)
+        return error_nomem(err, NULL);
+    for (size_t j = 0; j < m->p; j++) {
+        m->beta[j] = m->drop[j] == LINEAR_KEPT ? beta[j] : NAN;
+        m->odds[j] = exp(m->beta[j]);
+        m->se[j] = m->z[j] = m->pvalue[j] = m->low[j] = m->high[j] = NAN;
+        m->odds_low[j] = m->odds_high[j] = NAN;
+    }
+    for (size_t i = 0; i < m->n; i++) {
+        long double e = 0;
+        for (size_t j = 0; j < m->p; j++)
+            if (m->drop[j] == LINEAR_KEPT)
+                e += X[i * m->p + j] * m->beta[j];
+        eta[i] = e;
+    }
+    eta_measures(m, y, eta);
+    free(eta);
+    return RF_OK;
 }

@@ -57,6 +57,15 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
                        logistic_model **out, rf_error *err);
 void logistic_free(logistic_model *m);  /* accepts NULL */
 
+/* Replaces the coefficients with beta (p values from another solver of the
+ * same problem, such as gradient descent; dropped terms ignored) and
+ * recomputes the probabilities and likelihood measures. Standard errors,
+ * z, p values and every interval become NaN: they belong to the exact
+ * fit. X and y as given to logistic_fit. Errors: RF_ENOMEM. */
+rf_status logistic_set_beta(logistic_model *m, const long double *X,
+                            const double *y, const double *beta,
+                            rf_error *err);
+
 /* The probability of the positive class for a row x (p values). */
 double logistic_predict(const logistic_model *m, const long double *x);
 

@@ -29,9 +29,21 @@
  * is written as its value instead. */
 #define FORMULA_CHARS_MAX 8000
 
-/* Rows of measures on the Summary sheet (the caution below them is not
- * filtered). */
-#define SUMMARY_MEASURES 20
+#define CAUTION_PEOPLE \
+    "A probability here summarises past records, and past decisions can " \
+    "carry bias that the model learns and repeats. It supports a person's " \
+    "decision about a person and never replaces it. Check the results for " \
+    "each group of people before use, and follow local employment, " \
+    "education and anti-discrimination law and your organisation's " \
+    "policies."
+
+/* Rows of measures on the Summary sheet (the confusion matrix and the
+ * caution below them are not filtered): every model's first rows, each
+ * model's own, those of solver gradient and of a penalty. */
+#define SUMMARY_COMMON 7
+#define SUMMARY_LINEAR 13
+#define SUMMARY_LOGISTIC 18
+#define SUMMARY_GRADIENT 5
 
 /* Points a chart plots at most (the first rows of Estimates). */
 #define CHART_POINTS_MAX 20000
@@ -231,17 +243,19 @@ done:
     return out;
 }
 
-/* The estimate formula for row r (0-based sheet row), terms in order. */
-static int estimate_formula(strbuf *b, const design *d, const linear_model *m,
-                            const est_layout *L, uint32_t r)
+/* The estimate formula for row r (0-based sheet row), terms in order; for
+ * a logistic model the probability 1/(1+EXP(-(x'b))). */
+static int estimate_formula(strbuf *b, const design *d,
+                            const linear_drop *drop, const est_layout *L,
+                            uint32_t r, int logistic)
 {
     b->n = 0;
-    if (sb_add(b, "="))
+    if (sb_add(b, logistic ? "=1/(1+EXP(-(" : "="))
         return -1;
     int first = 1;
     char cell[32], col[16];
     for (size_t k = 0; k < d->p; k++) {
-        if (m->drop[k] != LINEAR_KEPT)
+        if (drop[k] != LINEAR_KEPT)
             continue;
         /* Coefficients!$B$(k+2) is term k's estimate */
         if (!first && sb_add(b, "+"))
@@ -273,14 +287,32 @@ static int estimate_formula(strbuf *b, const design *d, const linear_model *m,
     }
     if (first && sb_add(b, "0"))
         return -1;
+    if (logistic && sb_add(b, ")))"))
+        return -1;
     return 0;
+}
+
+/* The predicted-label formula of row r: the probability cell against the
+ * threshold, giving the target's own labels. */
+static int predicted_formula(strbuf *b, const design *d, const est_layout *L,
+                             uint32_t r, double threshold)
+{
+    char cell[32];
+    writer_cell_name(r, L->c_est, cell, sizeof cell);
+    b->n = 0;
+    return sb_add(b, "=IF(%s>=%.17g,", cell, threshold)
+           || sb_quoted(b, d->positive) || sb_add(b, ",")
+           || sb_quoted(b, d->negative) || sb_add(b, ")");
 }
 
 static rf_status write_estimates(writer *w, const job *j, const table *data,
                                  const table *score, const design *d,
-                                 const linear_model *m, rf_warnings *warn,
+                                 const report_model *rm, rf_warnings *warn,
                                  rf_error *err)
 {
+    const linear_model *m = rm->linear;
+    const logistic_model *lm = rm->logistic;
+    const linear_drop *drop = m ? m->drop : lm->drop;
     writer_sheet *s = writer_add_sheet(w, "Estimates", err);
     if (s == NULL)
         return err->status;
@@ -294,8 +326,8 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     L.c_target = c++;
     L.c_est = c++;
     L.c_res = c++;
-    L.c_low = c++;
-    L.c_high = c++;
+    L.c_low = m ? c++ : 0;
+    L.c_high = m ? c++ : 0;
     L.c_status = c++;
     L.c_input0 = c;
     L.c_extra0 = (uint16_t)(c + d->n_inputs);
@@ -329,10 +361,12 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     if (L.has_id)
         names[L.c_id] = j->id.name;
     names[L.c_target] = j->target.name;
-    names[L.c_est] = "estimate";
-    names[L.c_res] = "residual";
-    names[L.c_low] = "low";
-    names[L.c_high] = "high";
+    names[L.c_est] = m ? "estimate" : "probability";
+    names[L.c_res] = m ? "residual" : "predicted";
+    if (m) {
+        names[L.c_low] = "low";
+        names[L.c_high] = "high";
+    }
     names[L.c_status] = "status";
     for (size_t i = 0; i < d->n_inputs; i++)
         names[L.c_input0 + i] = d->inputs[i].name;
@@ -342,11 +376,13 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     writer_column(s, L.c_row, 8, WFMT_INTEGER);
     if (L.has_id)
         writer_column(s, L.c_id, 12, WFMT_NONE);
-    writer_column(s, L.c_target, 14, WFMT_FIXED2);
-    writer_column(s, L.c_est, 14, WFMT_FIXED2);
-    writer_column(s, L.c_res, 14, WFMT_FIXED2);
-    writer_column(s, L.c_low, 14, WFMT_FIXED2);
-    writer_column(s, L.c_high, 14, WFMT_FIXED2);
+    writer_column(s, L.c_target, 14, m ? WFMT_FIXED2 : WFMT_NONE);
+    writer_column(s, L.c_est, 14, m ? WFMT_FIXED2 : WFMT_FIXED4);
+    writer_column(s, L.c_res, 14, m ? WFMT_FIXED2 : WFMT_NONE);
+    if (m) {
+        writer_column(s, L.c_low, 14, WFMT_FIXED2);
+        writer_column(s, L.c_high, 14, WFMT_FIXED2);
+    }
     writer_column(s, L.c_status, 28, WFMT_NONE);
     for (size_t i = 0; i < d->n_inputs; i++) {
         double wdt = strlen(d->inputs[i].name) + 3.0;
@@ -377,7 +413,14 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         if (L.has_id && idc >= 0)
             write_cell(s, r, L.c_id, t, row->row, (size_t)idc);
         double target = (double)d->target[o];
-        if (isfinite(target))
+        if (lm) {
+            /* the class as the data wrote it: 'yes', 1, TRUE */
+            if (row->source == SOURCE_DATA && d->target_col >= 0)
+                write_cell(s, r, L.c_target, t, row->row,
+                           (size_t)d->target_col);
+            else if (d->label && d->label[o])
+                writer_text(s, r, L.c_target, d->label[o], WFMT_NONE);
+        } else if (isfinite(target))
             writer_number(s, r, L.c_target, target, WFMT_FIXED2, NULL);
         else if (row->source == SOURCE_DATA && d->target_col >= 0)
             write_cell(s, r, L.c_target, t, row->row, (size_t)d->target_col);
@@ -385,11 +428,35 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         const long double *x = design_row_x(d, o);
         if (row->status == ROW_SKIPPED) {
             snprintf(status, sizeof status, "skipped: %s", row->reason);
+        } else if (lm) {
+            double prob = row->status == ROW_FITTED ? lm->prob[row->index]
+                                                    : logistic_predict(lm, x);
+            if (estimate_formula(&fb, d, drop, &L, r, 1)) {
+                st = error_nomem(err, NULL);
+                goto out;
+            }
+            int blank = !isfinite(prob);
+            if (!blank && fb.n <= FORMULA_CHARS_MAX)
+                writer_formula(s, r, L.c_est, fb.s, prob, WFMT_FIXED4);
+            else if (!blank)
+                writer_number(s, r, L.c_est, prob, WFMT_FIXED4, NULL);
+            if (!blank) {
+                const char *label = prob >= j->threshold ? d->positive
+                                                         : d->negative;
+                if (predicted_formula(&fb, d, &L, r, j->threshold)) {
+                    st = error_nomem(err, NULL);
+                    goto out;
+                }
+                writer_formula_text(s, r, L.c_res, fb.s, label, WFMT_NONE);
+            }
+            snprintf(status, sizeof status, "%s%s",
+                     row->status == ROW_FITTED ? "fitted" : "estimated",
+                     blank ? " (probability not finite, left blank)" : "");
         } else {
             double est, low, high;
             linear_predict(m, x, &est, &low, &high);
             int blank = 0, b2 = 0;
-            if (estimate_formula(&fb, d, m, &L, r)) {
+            if (estimate_formula(&fb, d, drop, &L, r, 0)) {
                 st = error_nomem(err, NULL);
                 goto out;
             }
@@ -409,11 +476,12 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
             }
             writer_number(s, r, L.c_low, low, WFMT_FIXED2, &b2);
             writer_number(s, r, L.c_high, high, WFMT_FIXED2, &b2);
+            /* solver gradient has no intervals, by design: no note */
             snprintf(status, sizeof status, "%s%s",
                      row->status == ROW_FITTED ? "fitted" : "estimated",
                      blank ? " (estimate not finite, left blank)"
-                     : b2 && m->df_resid > 0 ? " (interval not finite, left blank)"
-                                             : "");
+                     : b2 && m->df_resid > 0 && rm->gradient == NULL
+                         ? " (interval not finite, left blank)" : "");
         }
         writer_text(s, r, L.c_status, status, WFMT_NONE);
         for (size_t i = 0; i < d->n_inputs; i++) {
@@ -457,10 +525,11 @@ out:
 }
 
 /* "dropped: collinear with living_area, (intercept)" */
-static void drop_note(const design *d, const linear_model *m, size_t k,
+static void drop_note(const design *d, const linear_drop *drop,
+                      const size_t *with, const size_t *n_with, size_t k,
                       const long double *X, char *buf, size_t n)
 {
-    switch (m->drop[k]) {
+    switch (drop[k]) {
     case LINEAR_KEPT:
         buf[0] = '\0';
         return;
@@ -474,10 +543,10 @@ static void drop_note(const design *d, const linear_model *m, size_t k,
         return;
     case LINEAR_DROP_COLLINEAR: {
         size_t used = (size_t)snprintf(buf, n, "dropped: collinear with ");
-        for (size_t i = 0; i < m->n_with[k] && used < n; i++)
+        for (size_t i = 0; i < n_with[k] && used < n; i++)
             used += (size_t)snprintf(buf + used, n - used, "%s%s",
                                      i ? ", " : "",
-                                     d->term[m->with[k * LINEAR_WITH_MAX + i]]);
+                                     d->term[with[k * LINEAR_WITH_MAX + i]]);
         if (used < n)
             snprintf(buf + used, n - used, " (it adds nothing they do not "
                                            "already give)");
@@ -486,53 +555,85 @@ static void drop_note(const design *d, const linear_model *m, size_t k,
     }
 }
 
-static rf_status write_coefficients(writer *w, const design *d,
-                                    const linear_model *m, rf_error *err)
+/* The note of a kept term: which level a category term is compared with,
+ * or why it has no standard error. */
+static void kept_note(const job *j, const design *d, const report_model *rm,
+                      size_t k, char *note, size_t n)
+{
+    note[0] = '\0';
+    for (size_t i = 0; i < d->n_inputs; i++) {
+        const design_input *in = &d->inputs[i];
+        if (!in->is_category || k < in->first_term
+            || k >= in->first_term + design_input_terms(in))
+            continue;
+        if (in->reference == DESIGN_NO_REFERENCE)
+            snprintf(note, n, "no intercept: the level's own constant, not a "
+                              "difference");
+        else
+            snprintf(note, n, "compared with the reference level '%s'",
+                     in->levels[in->reference]);
+    }
+    const char *why = NULL;
+    if (j->ridge > 0)
+        why = "penalised fit (ridge): the classical standard errors, p values "
+              "and intervals do not apply, so they are left blank";
+    else if (rm->gradient)
+        why = "solver gradient gives no standard errors; solver exact does";
+    else if (rm->linear && rm->linear->rss == 0)
+        why = "exact fit: no residual variation, so no t or p value";
+    if (why == NULL)
+        return;
+    size_t used = strlen(note);
+    snprintf(note + used, n - used, "%s%s", used ? "; " : "", why);
+}
+
+static rf_status write_coefficients(writer *w, const job *j, const design *d,
+                                    const report_model *rm, rf_error *err)
 {
     writer_sheet *s = writer_add_sheet(w, "Coefficients", err);
     if (s == NULL)
         return err->status;
+    const linear_model *m = rm->linear;
+    const logistic_model *lm = rm->logistic;
     static const char *const names[] = { "term", "estimate", "std error",
                                          "t", "p value", "low", "high",
-                                         "note" };
-    const double widths[] = { 24, 16, 14, 10, 10, 16, 16, 60 };
+                                         "odds ratio", "odds low",
+                                         "odds high", "note" };
+    const double widths[] = { 24, 16, 14, 10, 10, 16, 16, 14, 14, 14, 60 };
     const writer_format fmts[] = { WFMT_NONE, WFMT_SIG, WFMT_SIG, WFMT_FIXED4,
-                                   WFMT_PVALUE, WFMT_SIG, WFMT_SIG,
-                                   WFMT_NONE };
-    for (uint16_t c = 0; c < 8; c++)
-        writer_column(s, c, widths[c], fmts[c]);
-    writer_header(s, names, 8, (uint32_t)d->p);
+                                   WFMT_PVALUE, WFMT_SIG, WFMT_SIG, WFMT_SIG,
+                                   WFMT_SIG, WFMT_SIG, WFMT_NONE };
+    /* linear: the first 7 and note; logistic: all, z for t */
+    const char *shown[11];
+    uint16_t nc = 0, c_note = lm ? 10 : 7;
+    for (uint16_t c = 0; c < 11; c++) {
+        if (m && c >= 7 && c < 10)
+            continue;
+        shown[nc] = c == 3 && lm ? "z" : names[c];
+        writer_column(s, nc, widths[c], fmts[c]);
+        nc++;
+    }
+    writer_header(s, shown, nc, (uint32_t)d->p);
+    const linear_drop *drop = m ? m->drop : lm->drop;
+    const size_t *with = m ? m->with : lm->with;
+    const size_t *n_with = m ? m->n_with : lm->n_with;
     char note[600];
     for (size_t k = 0; k < d->p; k++) {
         uint32_t r = (uint32_t)(k + 1);
         writer_text(s, r, 0, d->term[k], WFMT_NONE);
-        drop_note(d, m, k, d->X, note, sizeof note);
-        if (m->drop[k] == LINEAR_KEPT) {
-            writer_number(s, r, 1, m->beta[k], WFMT_SIG, NULL);
-            writer_number(s, r, 2, m->se[k], WFMT_SIG, NULL);
-            writer_number(s, r, 3, m->t[k], WFMT_FIXED4, NULL);
-            writer_number(s, r, 4, m->pvalue[k], WFMT_PVALUE, NULL);
-            writer_number(s, r, 5, m->low[k], WFMT_SIG, NULL);
-            writer_number(s, r, 6, m->high[k], WFMT_SIG, NULL);
-            /* the note says which level a category term is compared with */
-            for (size_t i = 0; i < d->n_inputs; i++) {
-                const design_input *in = &d->inputs[i];
-                if (!in->is_category || k < in->first_term
-                    || k >= in->first_term + design_input_terms(in))
-                    continue;
-                if (in->reference == DESIGN_NO_REFERENCE)
-                    snprintf(note, sizeof note, "no intercept: the level's "
-                             "own constant, not a difference");
-                else
-                    snprintf(note, sizeof note,
-                             "compared with the reference level '%s'",
-                             in->levels[in->reference]);
-            }
-            if (m->rss == 0)
-                snprintf(note, sizeof note, "exact fit: no residual "
-                                            "variation, so no t or p value");
+        drop_note(d, drop, with, n_with, k, d->X, note, sizeof note);
+        if (drop[k] == LINEAR_KEPT) {
+            const double v[10] = {
+                m ? m->beta[k] : lm->beta[k], m ? m->se[k] : lm->se[k],
+                m ? m->t[k] : lm->z[k], m ? m->pvalue[k] : lm->pvalue[k],
+                m ? m->low[k] : lm->low[k], m ? m->high[k] : lm->high[k],
+                lm ? lm->odds[k] : NAN, lm ? lm->odds_low[k] : NAN,
+                lm ? lm->odds_high[k] : NAN, 0 };
+            for (uint16_t c = 1; c < c_note; c++)
+                writer_number(s, r, c, v[c - 1], fmts[c], NULL);
+            kept_note(j, d, rm, k, note, sizeof note);
         }
-        writer_text(s, r, 7, note, WFMT_NONE);
+        writer_text(s, r, c_note, note, WFMT_NONE);
     }
     return writer_status(w, err);
 }
@@ -561,23 +662,199 @@ static void trow(writer_sheet *s, uint32_t *r, const char *measure,
     (*r)++;
 }
 
+/* The rows of a linear fit. */
+static void summary_linear(writer_sheet *s, uint32_t *r, const design *d,
+                           const linear_model *m, int gradient)
+{
+    char note[300];
+    srow(s, r, "r squared", m->r2, WFMT_SIG,
+         d->intercept ? NULL : "uncentred (no intercept): 1 - RSS / sum of y squared");
+    srow(s, r, "adjusted r squared", m->adj_r2, WFMT_SIG, NULL);
+    srow(s, r, "residual std error", m->sigma, WFMT_SIG, "sqrt(RSS / residual df)");
+    srow(s, r, "rmse", m->rmse, WFMT_SIG, "sqrt(RSS / rows fitted)");
+    srow(s, r, "mae", m->mae, WFMT_SIG, "mean absolute residual");
+    srow(s, r, "f statistic", m->fstat, WFMT_SIG,
+         isinf(m->fstat) ? "infinite: the fit is exact" : NULL);
+    srow(s, r, "f p value", m->fpvalue, WFMT_PVALUE,
+         isinf(m->fstat) ? "not defined: the fit is exact" : NULL);
+    srow(s, r, "residual df", m->df_resid, WFMT_INTEGER, NULL);
+    srow(s, r, "aic", m->aic, WFMT_SIG,
+         isfinite(m->aic) ? "-2 log likelihood + 2 (terms estimated + 1)"
+                          : "not defined: the residuals are all zero");
+    srow(s, r, "bic", m->bic, WFMT_SIG,
+         isfinite(m->bic) ? "-2 log likelihood + ln(rows fitted) (terms estimated + 1)"
+                          : "not defined: the residuals are all zero");
+    srow(s, r, "level", m->level, WFMT_PERCENT, gradient
+         ? "confidence level (solver gradient gives no intervals)"
+         : "confidence level of every low / high");
+    snprintf(note, sizeof note,
+             "of the inputs after scaling each to unit length; a term is "
+             "dropped below a relative size of %.0e", m->rank_tol);
+    srow(s, r, "condition number", m->cond, WFMT_SCI, note);
+    int digits = linear_accurate_digits(m);
+    snprintf(note, sizeof note, "%s", m->refine_converged
+             ? "correct significant digits to expect in the exact solver's "
+               "estimates, from the condition number and extended-precision "
+               "refinement"
+             : "refinement did not converge: the design is too "
+               "ill-conditioned for full accuracy");
+    srow(s, r, "accurate digits", digits, WFMT_INTEGER, note);
+}
+
+/* The rows of a logistic fit. */
+static void summary_logistic(writer_sheet *s, uint32_t *r, const job *j,
+                             const design *d, const report_model *rm)
+{
+    const logistic_model *m = rm->logistic;
+    const classify_measures *c = rm->cm;
+    char note[300];
+    snprintf(note, sizeof note, "the event: probability is of this value "
+             "(%zu of the fitted rows; the other value, '%s', %zu)",
+             d->n_positive, d->negative, d->n_negative);
+    trow(s, r, "positive class", d->positive, note);
+    srow(s, r, "log likelihood", m->loglik, WFMT_SIG,
+         j->ridge > 0 ? "of the penalised estimates, without the penalty"
+                      : NULL);
+    srow(s, r, "null deviance", m->null_deviance, WFMT_SIG, d->intercept
+         ? "-2 log likelihood of the intercept-only model"
+         : "-2 log likelihood of probability 0.5 for every row");
+    srow(s, r, "residual deviance", m->deviance, WFMT_SIG,
+         "-2 log likelihood");
+    srow(s, r, "aic", m->aic, WFMT_SIG,
+         "residual deviance + 2 (terms estimated)");
+    srow(s, r, "bic", m->bic, WFMT_SIG,
+         "residual deviance + ln(rows fitted) (terms estimated)");
+    srow(s, r, "mcfadden r squared", m->mcfadden, WFMT_SIG,
+         "1 - log likelihood / null log likelihood");
+    snprintf(note, sizeof note, "share of fitted rows whose predicted label "
+             "(probability at or above %g) is their class", c->threshold);
+    srow(s, r, "accuracy", c->accuracy, WFMT_SIG, note);
+    srow(s, r, "precision", c->precision, WFMT_SIG, isnan(c->precision)
+         ? "not defined: no row is predicted positive"
+         : "of the rows predicted positive, the share that are");
+    srow(s, r, "recall", c->recall, WFMT_SIG,
+         "of the positive rows, the share predicted positive");
+    srow(s, r, "auc", c->auc, WFMT_SIG,
+         "area under the ROC curve: the chance that a positive row gets a "
+         "higher probability than a negative one (ties count one half)");
+    srow(s, r, "brier score", c->brier, WFMT_SIG,
+         "mean of (probability - outcome)^2, outcome 1 or 0");
+    srow(s, r, "log loss", c->logloss, WFMT_SIG,
+         "mean of -ln(probability given to the observed class), "
+         "probabilities clipped to [1e-15, 1 - 1e-15]");
+    if (c->hl_groups >= 3)
+        snprintf(note, sizeof note, "Hosmer-Lemeshow chi-squared over %d "
+                 "groups of rows by predicted risk (deciles, ties kept "
+                 "together), %d df; a small p value says the probabilities "
+                 "do not match the observed rates", c->hl_groups, c->hl_df);
+    else
+        snprintf(note, sizeof note, "not defined: fewer than 3 risk groups");
+    srow(s, r, "hosmer-lemeshow", c->hl_stat, WFMT_SIG, note);
+    srow(s, r, "hosmer-lemeshow p value", c->hl_pvalue, WFMT_PVALUE,
+         c->hl_groups >= 3 ? "chi-squared upper tail"
+                           : "not defined: fewer than 3 risk groups");
+    if (rm->gradient)
+        srow(s, r, "iterations", (double)rm->gradient->iterations,
+             WFMT_INTEGER, "epochs of gradient descent");
+    else
+        srow(s, r, "iterations", m->iterations, WFMT_INTEGER,
+             "Newton (IRLS) steps; converged when the deviance changes by "
+             "under 1e-12 relative and the largest step is under 1e-10");
+    srow(s, r, "threshold", c->threshold, WFMT_SIG, "probability at or above "
+         "which a row is predicted positive");
+    srow(s, r, "level", m->level, WFMT_PERCENT, rm->gradient || j->ridge > 0
+         ? "confidence level (this fit gives no intervals)"
+         : "confidence level of every low / high");
+}
+
+/* The rows of solver gradient. */
+static void summary_gradient(writer_sheet *s, uint32_t *r,
+                             const report_model *rm)
+{
+    const gradient_model *g = rm->gradient;
+    char note[300];
+    trow(s, r, "solver", "gradient", "batch gradient descent on standardized "
+         "inputs; coefficients reported on the original scale");
+    if (rm->linear)
+        srow(s, r, "iterations", (double)g->iterations, WFMT_INTEGER,
+             "epochs of gradient descent");
+    snprintf(note, sizeof note, "%s (last epoch lowered the cost by %.2g of "
+             "itself; cap %ld epochs)", gradient_stop_str(g->stop),
+             g->last_drop, g->epochs);
+    trow(s, r, "stopped", g->converged ? "converged" : "not converged", note);
+    srow(s, r, "final cost", g->cost, WFMT_SIG, g->logistic
+         ? "mean log loss (+ penalty / rows) at the last epoch"
+         : "mean squared error / 2 (+ penalty / rows) at the last epoch");
+    srow(s, r, "rate", g->rate, WFMT_SIG, "step size on the standardized "
+         "scale (1 / Lipschitz constant of the gradient unless the job sets "
+         "rate)");
+    if (rm->logistic)
+        srow(s, r, "agreement with exact", rm->agree_digits, WFMT_SIG,
+             "significant digits shared with solver exact's coefficients "
+             "(the worst term)");
+    else
+        srow(s, r, "agreement with exact", rm->agree_digits, WFMT_SIG,
+             isnan(rm->agree_digits)
+                 ? "not compared: solver exact has no ridge penalty"
+                 : "significant digits shared with solver exact's "
+                   "coefficients (the worst term)");
+}
+
+/* A small labelled 2x2 block: rows the observed class, columns the
+ * predicted one. */
+static void confusion_block(writer_sheet *s, uint32_t *r, const design *d,
+                            const classify_measures *c)
+{
+    char head[300];
+    snprintf(head, sizeof head, "confusion matrix (fitted rows, threshold "
+             "%g)", c->threshold);
+    writer_text(s, *r, 0, head, WFMT_BOLD);
+    (*r)++;
+    snprintf(head, sizeof head, "predicted %s", d->positive);
+    writer_text(s, *r, 1, head, WFMT_BOLD);
+    snprintf(head, sizeof head, "predicted %s", d->negative);
+    writer_text(s, *r, 2, head, WFMT_BOLD);
+    (*r)++;
+    snprintf(head, sizeof head, "observed %s", d->positive);
+    writer_text(s, *r, 0, head, WFMT_BOLD);
+    writer_number(s, *r, 1, (double)c->tp, WFMT_INTEGER, NULL);
+    writer_number(s, *r, 2, (double)c->fn, WFMT_INTEGER, NULL);
+    (*r)++;
+    snprintf(head, sizeof head, "observed %s", d->negative);
+    writer_text(s, *r, 0, head, WFMT_BOLD);
+    writer_number(s, *r, 1, (double)c->fp, WFMT_INTEGER, NULL);
+    writer_number(s, *r, 2, (double)c->tn, WFMT_INTEGER, NULL);
+    (*r)++;
+}
+
 static rf_status write_summary(writer *w, const job *j, const table *data,
                                const table *score, const design *d,
-                               const linear_model *m, rf_error *err)
+                               const report_model *rm, rf_error *err)
 {
     writer_sheet *s = writer_add_sheet(w, "Summary", err);
     if (s == NULL)
         return err->status;
+    const linear_model *m = rm->linear;
+    const logistic_model *lm = rm->logistic;
     static const char *const names[] = { "measure", "value", "note" };
-    writer_column(s, 0, 24, WFMT_NONE);
+    writer_column(s, 0, 26, WFMT_NONE);
     writer_column(s, 1, 20, WFMT_SIG);
     writer_column(s, 2, 80, WFMT_NONE);
-    writer_header(s, names, 3, SUMMARY_MEASURES);
+    uint32_t measures = SUMMARY_COMMON
+        + (m ? SUMMARY_LINEAR : SUMMARY_LOGISTIC)
+        + (rm->gradient ? SUMMARY_GRADIENT + (m ? 1 : 0) : 0)
+        + (j->ridge > 0 ? 1 : 0);
+    writer_header(s, names, 3, measures);
     uint32_t r = 1;
     char note[300];
     size_t nread = table_rows(data) + (score ? table_rows(score) : 0);
-    size_t ndropped = d->p - m->rank;
-    trow(s, &r, "model", job_model_name(j->model), "ordinary least squares");
+    size_t rank = m ? m->rank : lm->rank;
+    size_t ndropped = d->p - rank;
+    trow(s, &r, "model", job_model_name(j->model),
+         rm->gradient ? (m ? "least squares by gradient descent"
+                           : "maximum likelihood by gradient descent")
+         : m ? "ordinary least squares"
+             : "maximum likelihood by Newton's method (IRLS)");
     trow(s, &r, "target", j->target.name, NULL);
     srow(s, &r, "rows read", (double)nread, WFMT_INTEGER, NULL);
     srow(s, &r, "rows fitted", (double)d->n_fit, WFMT_INTEGER, NULL);
@@ -588,42 +865,27 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
          "rows with a blank target, and rows of the score table");
     snprintf(note, sizeof note, ndropped ? "%zu estimated; %zu dropped (see "
                                            "Coefficients)" : "%zu estimated",
-             m->rank, ndropped);
+             rank, ndropped);
     srow(s, &r, "terms", (double)d->p, WFMT_INTEGER, note);
-    srow(s, &r, "r squared", m->r2, WFMT_SIG,
-         d->intercept ? NULL : "uncentred (no intercept): 1 - RSS / sum of y squared");
-    srow(s, &r, "adjusted r squared", m->adj_r2, WFMT_SIG, NULL);
-    srow(s, &r, "residual std error", m->sigma, WFMT_SIG, "sqrt(RSS / residual df)");
-    srow(s, &r, "rmse", m->rmse, WFMT_SIG, "sqrt(RSS / rows fitted)");
-    srow(s, &r, "mae", m->mae, WFMT_SIG, "mean absolute residual");
-    srow(s, &r, "f statistic", m->fstat, WFMT_SIG,
-         isinf(m->fstat) ? "infinite: the fit is exact" : NULL);
-    srow(s, &r, "f p value", m->fpvalue, WFMT_PVALUE,
-         isinf(m->fstat) ? "not defined: the fit is exact" : NULL);
-    srow(s, &r, "residual df", m->df_resid, WFMT_INTEGER, NULL);
-    srow(s, &r, "aic", m->aic, WFMT_SIG,
-         isfinite(m->aic) ? "-2 log likelihood + 2 (terms estimated + 1)"
-                          : "not defined: the residuals are all zero");
-    srow(s, &r, "bic", m->bic, WFMT_SIG,
-         isfinite(m->bic) ? "-2 log likelihood + ln(rows fitted) (terms estimated + 1)"
-                          : "not defined: the residuals are all zero");
-    srow(s, &r, "level", m->level, WFMT_PERCENT,
-         "confidence level of every low / high");
-    snprintf(note, sizeof note,
-             "of the inputs after scaling each to unit length; a term is "
-             "dropped below a relative size of %.0e", m->rank_tol);
-    srow(s, &r, "condition number", m->cond, WFMT_SCI, note);
-    int digits = linear_accurate_digits(m);
-    snprintf(note, sizeof note, "%s", m->refine_converged
-             ? "correct significant digits to expect in the estimates, from "
-               "the condition number and extended-precision refinement"
-             : "refinement did not converge: the design is too "
-               "ill-conditioned for full accuracy");
-    srow(s, &r, "accurate digits", digits, WFMT_INTEGER, note);
-    assert(r - 1 == SUMMARY_MEASURES);  /* the autofilter covers them all */
+    if (m)
+        summary_linear(s, &r, d, m, rm->gradient != NULL);
+    else
+        summary_logistic(s, &r, j, d, rm);
+    if (j->ridge > 0)
+        srow(s, &r, "ridge", j->ridge, WFMT_SIG, "L2 penalty (ridge / 2) "
+             "times the sum of squared coefficients of the standardized "
+             "inputs; the intercept is not penalised");
+    if (rm->gradient)
+        summary_gradient(s, &r, rm);
+    assert(r - 1 == measures);  /* the autofilter covers them all */
     r++;
+    if (lm) {
+        confusion_block(s, &r, d, rm->cm);
+        r++;
+        trow(s, &r, "caution", "scoring people", CAUTION_PEOPLE);
+        return writer_status(w, err);
+    }
     trow(s, &r, "caution", "an estimate is not an appraisal", CAUTION_PRICE);
-
     /* Two charts over the Estimates columns: target against estimate (a
      * good fit lies on the diagonal) and residual against estimate (a good
      * fit shows no pattern). Capped, because a spreadsheet program slows
@@ -649,7 +911,8 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
 
 static rf_status write_job(writer *w, const job *j,
                            const report_facts *facts,
-                           const rf_warnings *warn, rf_error *err)
+                           const rf_warnings *warn, const char *caution,
+                           rf_error *err)
 {
     writer_sheet *s = writer_add_sheet(w, "Job", err);
     if (s == NULL)
@@ -712,21 +975,23 @@ static rf_status write_job(writer *w, const job *j,
     }
     r++;
     writer_text(s, r++, 0, "caution", WFMT_BOLD);
-    writer_text(s, r++, 0, CAUTION_PRICE, WFMT_NONE);
+    writer_text(s, r++, 0, caution, WFMT_NONE);
     return writer_status(w, err);
 }
 
-rf_status report_linear(writer *w, const job *j, const table *data,
-                        const table *score, const design *d,
-                        const linear_model *m, const report_facts *facts,
-                        rf_warnings *warn, rf_error *err)
+rf_status report_write(writer *w, const job *j, const table *data,
+                       const table *score, const design *d,
+                       const report_model *rm, const report_facts *facts,
+                       rf_warnings *warn, rf_error *err)
 {
     rf_status st;
-    if ((st = write_estimates(w, j, data, score, d, m, warn, err)))
+    assert((rm->linear == NULL) != (rm->logistic == NULL));
+    if ((st = write_estimates(w, j, data, score, d, rm, warn, err)))
         return st;
-    if ((st = write_coefficients(w, d, m, err)))
+    if ((st = write_coefficients(w, j, d, rm, err)))
         return st;
-    if ((st = write_summary(w, j, data, score, d, m, err)))
+    if ((st = write_summary(w, j, data, score, d, rm, err)))
         return st;
-    return write_job(w, j, facts, warn, err);
+    return write_job(w, j, facts, warn,
+                     rm->logistic ? CAUTION_PEOPLE : CAUTION_PRICE, err);
 }

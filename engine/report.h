@@ -1,6 +1,7 @@
 /*
  * report.h: lays out the result workbook of a fitted job: the Estimates,
- * Coefficients, Summary and Job sheets with the labels of docs/workbook.md.
+ * Coefficients, Summary and Job sheets with the labels of docs/workbook.md,
+ * for linear and logistic models fitted by either solver.
  * Knows what the sheets mean; io/writer.c knows how cells reach the file.
  */
 #ifndef ROWFIT_REPORT_H
@@ -14,7 +15,10 @@
 #include "../io/writer.h"
 #include "design.h"
 #include "job.h"
+#include "classify.h"
+#include "gradient.h"
 #include "linear.h"
+#include "logistic.h"
 
 /* Run facts for the Job sheet. */
 typedef struct report_facts {
@@ -25,12 +29,26 @@ typedef struct report_facts {
     const rf_warnings *warnings;
 } report_facts;
 
-/* Writes every sheet of a linear job into w. Warnings found while writing
- * (a value that could not be written) are appended to warn before the Job
+/* What was fitted. Exactly one of linear and logistic is set; with
+ * solver gradient it carries the gradient's coefficients (set with
+ * linear_set_beta or logistic_set_beta) and gradient says how the descent
+ * ran. */
+typedef struct report_model {
+    const linear_model *linear;
+    const logistic_model *logistic;
+    const gradient_model *gradient;  /* solver gradient, else NULL */
+    double agree_digits;   /* gradient: significant digits its coefficients
+                              share with the exact solver's (NaN when not
+                              compared: a penalised linear fit) */
+    const classify_measures *cm;     /* logistic: fitted rows' measures */
+} report_model;
+
+/* Writes every sheet of the job into w. Warnings found while writing (a
+ * value that could not be written) are appended to warn before the Job
  * sheet lists them. */
-rf_status report_linear(writer *w, const job *j, const table *data,
-                        const table *score, const design *d,
-                        const linear_model *m, const report_facts *facts,
-                        rf_warnings *warn, rf_error *err);
+rf_status report_write(writer *w, const job *j, const table *data,
+                       const table *score, const design *d,
+                       const report_model *rm, const report_facts *facts,
+                       rf_warnings *warn, rf_error *err);
 
 #endif

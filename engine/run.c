@@ -4,6 +4,7 @@
 #include "run.h"
 
 #include <errno.h>
+#include <stdlib.h>
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -14,9 +15,12 @@
 #include "../io/fileinfo.h"
 #include "../io/table.h"
 #include "../io/writer.h"
+#include "classify.h"
 #include "design.h"
+#include "gradient.h"
 #include "job.h"
 #include "linear.h"
+#include "logistic.h"
 #include "report.h"
 
 #ifndef ROWFIT_VERSION
@@ -139,6 +143,212 @@ static rf_status warn_skips(const design *d, const table *data,
     return RF_OK;
 }
 
+/* An error at the job's model line, unless the error has a place. */
+static rf_status at_model(const job *j, rf_status st, rf_error *err)
+{
+    if (st != RF_OK && err->where[0] == '\0')
+        snprintf(err->where, sizeof err->where, "%s:%d", j->file,
+                 j->model_line);
+    return st;
+}
+
+/* Everything a fit produces, owned here. */
+typedef struct fit {
+    linear_model *lin;
+    logistic_model *logit;
+    gradient_model *grad;
+    double *y;               /* logistic: the 0/1 target as doubles */
+    classify_measures cm;
+    report_model rm;
+} fit;
+
+static void fit_free(fit *f)
+{
+    linear_free(f->lin);
+    logistic_free(f->logit);
+    gradient_free(f->grad);
+    free(f->y);
+}
+
+/* Significant digits two coefficient vectors share, the worst kept term:
+ * -log10(|a - b| / |b|), at most 16. */
+static double agree_digits(const double *a, const double *b,
+                           const linear_drop *drop, size_t p)
+{
+    double worst = 16;
+    for (size_t k = 0; k < p; k++) {
+        if (drop[k] != LINEAR_KEPT)
+            continue;
+        double rel = b[k] != 0 ? fabs(a[k] - b[k]) / fabs(b[k])
+                               : fabs(a[k]);
+        double dg = rel > 0 ? -log10(rel) : 16;
+        if (!(dg >= worst))   /* NaN counts as no agreement */
+            worst = isnan(dg) ? 0 : dg;
+    }
+    return worst < 0 ? 0 : worst;
+}
+
+/* solver gradient: descends on the terms the exact fit kept (it decides
+ * the rank; descent cannot), then puts its coefficients into the exact
+ * model, which recomputes every measure from them. The exact coefficients
+ * are kept long enough to say how closely the two agree. */
+static rf_status fit_gradient(const job *j, const design *d, fit *f,
+                              const linear_drop *drop, rf_error *err)
+{
+    size_t n = d->n_fit, p = d->p, pk = 0;
+    int logistic = f->logit != NULL;
+    for (size_t k = 0; k < p; k++)
+        pk += drop[k] == LINEAR_KEPT;
+    long double *Xk = malloc((n * pk > 0 ? n * pk : 1) * sizeof *Xk);
+    double *yk = malloc((n ? n : 1) * sizeof *yk);
+    double *beta = malloc(p * sizeof *beta);
+    double *exact = malloc(p * sizeof *exact);
+    rf_status st = RF_OK;
+    if (Xk == NULL || yk == NULL || beta == NULL || exact == NULL) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    for (size_t i = 0; i < n; i++) {
+        for (size_t k = 0, c = 0; k < p; k++)
+            if (drop[k] == LINEAR_KEPT)
+                Xk[i * pk + c++] = d->X[i * p + k];
+        yk[i] = (double)d->y[i];
+    }
+    int icpt = d->intercept && drop[0] == LINEAR_KEPT;
+    st = gradient_fit(Xk, yk, n, pk, icpt, logistic, j->ridge, j->rate,
+                      j->epochs, &f->grad, err);
+    if (st) {
+        st = at_model(j, st, err);
+        goto out;
+    }
+    const gradient_model *g = f->grad;
+    if (!g->converged) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file,
+                 j->epochs_line ? j->epochs_line : j->solver_line);
+        st = error_set(err, RF_EINPUT, where,
+                       "solver gradient did not converge: %s after %ld "
+                       "epochs (cost %.6g, last epoch lowered it by %.2g of "
+                       "itself). %s, or use `solver exact`",
+                       g->stop == GRADIENT_DIVERGED ? "the cost rose"
+                       : g->stop == GRADIENT_NOTHING ? "nothing to fit"
+                       : "it reached the epoch cap", g->iterations, g->cost,
+                       g->last_drop, g->stop == GRADIENT_DIVERGED
+                       ? "Lower `rate`" : j->rate_line
+                       ? "Raise `epochs`, remove `rate` (the default step is "
+                         "the largest safe one)" : "Raise `epochs`");
+        goto out;
+    }
+    for (size_t k = 0, c = 0; k < p; k++)
+        beta[k] = drop[k] == LINEAR_KEPT ? g->beta[c++] : NAN;
+    memcpy(exact, logistic ? f->logit->beta : f->lin->beta,
+           p * sizeof *exact);
+    if (logistic) {
+        if ((st = logistic_set_beta(f->logit, d->X, yk, beta, err)))
+            goto out;
+    } else {
+        linear_set_beta(f->lin, d->X, d->y, beta);
+    }
+    /* the exact linear fit has no penalty: nothing to compare with */
+    f->rm.agree_digits = !logistic && j->ridge > 0
+        ? NAN : agree_digits(beta, exact, drop, p);
+    f->rm.gradient = g;
+out:
+    free(Xk);
+    free(yk);
+    free(beta);
+    free(exact);
+    return st;
+}
+
+/* The logistic model: the exact fit (also the rank decisions and the
+ * separation check for solver gradient), then the measures of its
+ * probabilities. Separation without a penalty and non-convergence stop
+ * the job, at the model line, with what to do. */
+static rf_status fit_logistic(const job *j, const design *d, fit *f,
+                              rf_error *err)
+{
+    size_t n = d->n_fit;
+    if ((f->y = malloc((n ? n : 1) * sizeof *f->y)) == NULL)
+        return error_nomem(err, NULL);
+    for (size_t i = 0; i < n; i++)
+        f->y[i] = (double)d->y[i];
+    rf_status st = logistic_fit(d->X, f->y, n, d->p, d->intercept, j->level,
+                                j->ridge, &f->logit, err);
+    if (st)
+        return at_model(j, st, err);
+    const logistic_model *m = f->logit;
+    char where[ERROR_WHERE_MAX];
+    snprintf(where, sizeof where, "%s:%d", j->file, j->model_line);
+    if (m->separation != SEPARATION_NONE && j->ridge == 0) {
+        const char *term = m->separating_term >= 0
+            ? d->term[m->separating_term] : "the inputs";
+        return error_set(err, RF_EINPUT, where,
+                         "the classes are %s separated: '%s' (with the other "
+                         "inputs) tells %s fitted row's class exactly, so "
+                         "the coefficients grow without bound and have no "
+                         "maximum likelihood estimate. Add a line `ridge 1` "
+                         "(an L2 penalty) for finite estimates, or remove "
+                         "or regroup that input",
+                         m->separation == SEPARATION_COMPLETE ? "completely"
+                                                              : "partly",
+                         term, m->separation == SEPARATION_COMPLETE
+                         ? "every" : "some");
+    }
+    if (!m->converged)
+        return error_set(err, RF_EINPUT, where,
+                         "the logistic fit did not converge in %d Newton "
+                         "steps (%s); a `ridge` penalty, fewer terms or "
+                         "rescaled inputs help", m->iterations,
+                         m->iterations >= LOGISTIC_ITER_MAX
+                         ? "the step cap" : "no step improved the fit");
+    f->rm.logistic = m;
+    if (j->solver == SOLVER_GRADIENT
+        && (st = fit_gradient(j, d, f, m->drop, err)))
+        return st;
+    if ((st = classify_measure(f->y, m->prob, n, j->threshold, &f->cm,
+                               err)))
+        return at_model(j, st, err);
+    f->rm.cm = &f->cm;
+    return RF_OK;
+}
+
+static rf_status fit_model(const job *j, const design *d, fit *f,
+                           rf_warnings *warn, rf_error *err)
+{
+    rf_status st;
+    memset(f, 0, sizeof *f);
+    f->rm.agree_digits = NAN;
+    if (j->model == MODEL_LOGISTIC) {
+        if ((st = fit_logistic(j, d, f, err)))
+            return st;
+    } else {
+        if ((st = linear_fit(d->X, d->y, d->n_fit, d->p, d->intercept,
+                             j->level, &f->lin, err)))
+            return at_model(j, st, err);
+        f->rm.linear = f->lin;
+        const linear_model *m = f->lin;
+        if ((m->cond > COND_WARN || !m->refine_converged)
+            && (st = error_warn(warn, NULL,
+                                "the inputs are nearly collinear (condition "
+                                "number %.2g after scaling): expect about %d "
+                                "correct digits in the coefficients; centring "
+                                "inputs or fewer polynomial terms helps",
+                                m->cond, linear_accurate_digits(m))))
+            return st;
+        if (j->solver == SOLVER_GRADIENT
+            && (st = fit_gradient(j, d, f, m->drop, err)))
+            return st;
+    }
+    const linear_drop *drop = f->lin ? f->lin->drop : f->logit->drop;
+    for (size_t k = 0; k < d->p; k++)
+        if (drop[k] != LINEAR_KEPT
+            && (st = error_warn(warn, NULL, "term '%s' was dropped; the "
+                                "Coefficients sheet says why", d->term[k])))
+            return st;
+    return RF_OK;
+}
+
 rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
                   run_result *res, rf_error *err)
 {
@@ -147,7 +357,8 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
     job *j = NULL;
     table *data = NULL, *score = NULL;
     design *d = NULL;
-    linear_model *m = NULL;
+    fit f;
+    memset(&f, 0, sizeof f);
     writer *w = NULL;
     rf_status st;
 
@@ -192,27 +403,9 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
     if (opt->check_only)
         goto done;
 
-    if ((st = linear_fit(d->X, d->y, d->n_fit, d->p, d->intercept, j->level,
-                         &m, err))) {
-        if (err->where[0] == '\0')
-            snprintf(err->where, sizeof err->where, "%s:%d", j->file,
-                     j->model_line);
+    if ((st = fit_model(j, d, &f, warn, err)))
         goto done;
-    }
     stage(opt, "fitted", d->n_fit, &t0);
-    for (size_t k = 0; k < d->p; k++)
-        if (m->drop[k] != LINEAR_KEPT
-            && (st = error_warn(warn, NULL, "term '%s' was dropped; the "
-                                "Coefficients sheet says why", d->term[k])))
-            goto done;
-    if ((m->cond > COND_WARN || !m->refine_converged)
-        && (st = error_warn(warn, NULL,
-                            "the inputs are nearly collinear (condition number "
-                            "%.2g after scaling): expect about %d correct "
-                            "digits in the coefficients; centring inputs or "
-                            "fewer polynomial terms helps", m->cond,
-                            linear_accurate_digits(m))))
-        goto done;
 
     report_facts facts;
     memset(&facts, 0, sizeof facts);
@@ -233,7 +426,7 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
                           "rowfit " ROWFIT_VERSION, &w, err)))
         goto done;
     writer_set_warnings(w, warn);
-    if ((st = report_linear(w, j, data, score, d, m, &facts, warn, err)))
+    if ((st = report_write(w, j, data, score, d, &f.rm, &facts, warn, err)))
         goto done;
     st = writer_commit(w, err);
     w = NULL;
@@ -242,7 +435,7 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
         snprintf(res->written, sizeof res->written, "%s", out);
 done:
     writer_abort(w);
-    linear_free(m);
+    fit_free(&f);
     design_free(d);
     table_free(score);
     table_free(data);

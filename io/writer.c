@@ -910,9 +910,10 @@ rf_status writer_scatter(writer_sheet *s, uint32_t row, uint16_t col,
     return e == LXW_NO_ERROR ? RF_OK : cell_error(s, row, col, e);
 }
 
-rf_status writer_formula(writer_sheet *s, uint32_t row, uint16_t col,
-                         const char *formula, double cached,
-                         writer_format fmt)
+/* A formula cell with a cached number (text == NULL) or cached text. */
+static rf_status formula_cell(writer_sheet *s, uint32_t row, uint16_t col,
+                              const char *formula, double cached,
+                              const char *text, writer_format fmt)
 {
     rf_status st = check_cell(s, row, col);
     if (st != RF_OK)
@@ -928,27 +929,52 @@ rf_status writer_formula(writer_sheet *s, uint32_t row, uint16_t col,
     /* Formulas are built by the program, but may quote column names from
      * the input: keep the file valid XML whatever they hold. No "_x"
      * escaping here, which would change the formula's text. */
-    text_fix fix;
+    text_fix fix, tfix = { 0, 0 };
     char *clean = clean_text(formula, 0, CELL_TEXT_MAX, &fix);
     if (clean == NULL)
         return fail_cell(s, row, col, RF_ENOMEM, "%s", "out of memory");
+    char *ctext = text ? clean_text(text, 1, CELL_TEXT_MAX, &tfix) : NULL;
+    if (text && ctext == NULL) {
+        if (clean != formula)
+            free(clean);
+        return fail_cell(s, row, col, RF_ENOMEM, "%s", "out of memory");
+    }
     lxw_format *f = format_of(w, fmt);
     locale_t old = uselocale(w->cloc);
     /* An empty string result is "no cached value": a plain
      * worksheet_write_formula would cache 0, which a reader that does not
      * recalculate would show as a real zero. */
-    lxw_error e = isfinite(cached)
+    lxw_error e = text ? worksheet_write_formula_str(s->ws, row, col, clean,
+                                                      f, ctext)
+        : isfinite(cached)
         ? worksheet_write_formula_num(s->ws, row, col, clean, f,
                                       cached + 0.0)
         : worksheet_write_formula_str(s->ws, row, col, clean, f, "");
     uselocale(old);
     if (clean != formula)
         free(clean);
-    if (e == LXW_NO_ERROR && (fix.replaced > 0 || fix.cut))
+    if (ctext != text)
+        free(ctext);
+    if (e == LXW_NO_ERROR && (fix.replaced > 0 || fix.cut || tfix.cut
+                              || tfix.replaced > 0))
         return fail_cell(s, row, col, RF_ESYSTEM, "%s",
-                         "internal error: formula is not valid UTF-8 or is "
-                         "too long");
+                         "internal error: formula or its text is not valid "
+                         "UTF-8 or is too long");
     return e == LXW_NO_ERROR ? RF_OK : cell_error(s, row, col, e);
+}
+
+rf_status writer_formula(writer_sheet *s, uint32_t row, uint16_t col,
+                         const char *formula, double cached,
+                         writer_format fmt)
+{
+    return formula_cell(s, row, col, formula, cached, NULL, fmt);
+}
+
+rf_status writer_formula_text(writer_sheet *s, uint32_t row, uint16_t col,
+                              const char *formula, const char *cached,
+                              writer_format fmt)
+{
+    return formula_cell(s, row, col, formula, 0, cached ? cached : "", fmt);
 }
 
 /* Forces what was written to tmp or to the folder onto the disk, so a

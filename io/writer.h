@@ -96,6 +96,11 @@ rf_status writer_blank(writer_sheet *s, uint32_t row, uint16_t col,
 rf_status writer_formula(writer_sheet *s, uint32_t row, uint16_t col,
                          const char *formula, double cached,
                          writer_format fmt);
+/* The same with a text result ("=IF(B2>=0.5,\"yes\",\"no\")"), cached as
+ * text; cached text is written as it is, never as a formula. */
+rf_status writer_formula_text(writer_sheet *s, uint32_t row, uint16_t col,
+                              const char *formula, const char *cached,
+                              writer_format fmt);
 
 /* A scatter chart with its top-left corner at (row, col) of s, plotting
  * the cells of y_range against those of x_range (ranges like

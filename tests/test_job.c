@@ -791,24 +791,18 @@ static void test_job_rejects_features_not_available_yet(void **state)
 {
     (void)state;
     static const bad_case c[] = {
-        {"logistic", "data s.csv\ntarget p\ninputs a\nmodel logistic\n", 4,
-         "model logistic is not available yet"},
         {"network", "data s.csv\ntarget p\ninputs a\nmodel network\n", 4,
          "model network is not available yet"},
         {"network with its options", "data s.csv\ntarget p\ninputs a\n"
          "model network\nhidden 16, 8\nrestarts 3\nsolver adam\nrate 0.01\n"
          "epochs 200\n", 4, "model network is not available yet"},
-        {"logistic with its options", "data s.csv\ntarget p\ninputs a\n"
-         "model logistic\npositive \"sold\"\nthreshold 0.3\n", 4,
-         "model logistic is not available yet"},
-        {"ridge", BASE "ridge 0.5\n", 5,
-         "ridge other than 0 is not available yet"},
+        {"ridge with exact linear", BASE "ridge 0.5\n", 5,
+         "ridge with model linear and solver exact (use solver gradient for "
+         "a penalised linear fit) is not available yet"},
         {"ridge auto", BASE "ridge AUTO\n", 5,
          "ridge auto is not available yet"},
-        {"solver gradient", BASE "solver gradient\n", 5,
-         "solver gradient is not available yet"},
-        {"gradient with rate", BASE "solver gradient\nrate 0.1\nepochs 50\n",
-         5, "solver gradient is not available yet"},
+        {"ridge auto on logistic", "data s.csv\ntarget p\ninputs a\n"
+         "model logistic\nridge auto\n", 5, "ridge auto is not available yet"},
         {"report ratio-study", BASE "report ratio-study\n", 5,
          "report ratio-study is not available yet"},
         {"report selection-rates", BASE
@@ -819,6 +813,33 @@ static void test_job_rejects_features_not_available_yet(void **state)
         {"folds at limit", BASE "folds 1000\n", 5, "not available yet"},
     };
     run_cases(c, N(c));
+}
+
+/* The features of yes/no targets and of gradient descent parse into the
+ * job (they were refused before the logistic model existed). */
+static void test_job_accepts_logistic_and_gradient(void **state)
+{
+    (void)state;
+    job *j = NULL;
+    rf_error err;
+    assert_int_equal(job_parse("data s.csv\ntarget done\ninputs a\n"
+                               "model logistic\npositive \"Completed\"\n"
+                               "threshold 0.3\nridge 0.5\nsolver gradient\n"
+                               "rate 0.2\nepochs 900\n", "t.job", &j, &err),
+                     RF_OK);
+    assert_int_equal(j->model, MODEL_LOGISTIC);
+    assert_string_equal(j->positive, "Completed");
+    assert_true(j->threshold == 0.3);
+    assert_true(j->ridge == 0.5);
+    assert_int_equal(j->solver, SOLVER_GRADIENT);
+    assert_true(j->rate == 0.2);
+    assert_int_equal(j->epochs, 900);
+    job_free(j);
+    assert_int_equal(job_parse(BASE "solver gradient\nridge 2\n", "t.job",
+                               &j, &err), RF_OK);
+    assert_int_equal(j->model, MODEL_LINEAR);
+    assert_true(j->ridge == 2);
+    job_free(j);
 }
 
 /* ------------------------------------------------------- job_read */
@@ -1005,6 +1026,7 @@ int main(void)
         cmocka_unit_test(test_job_requires_data_target_model_inputs),
         cmocka_unit_test(test_job_rejects_directives_that_do_not_apply),
         cmocka_unit_test(test_job_rejects_features_not_available_yet),
+        cmocka_unit_test(test_job_accepts_logistic_and_gradient),
         cmocka_unit_test(test_job_read_reads_a_file),
         cmocka_unit_test(test_job_read_missing_file_is_input_error),
         cmocka_unit_test(test_job_read_directory_is_input_error),
