@@ -710,6 +710,47 @@ static void test_linear_degree7_polynomial_is_accurate(void **state)
     linear_free(m);
 }
 
+/* linear_set_beta: the exact solution put back gives the same measures;
+ * other coefficients give the residuals and RSS their definitions give,
+ * and no standard errors or intervals (they belong to the exact fit). */
+static void test_linear_set_beta_recomputes_measures(void **state)
+{
+    (void)state;
+    long double X[W_N * W_P], y[W_N];
+    well_design(X, y);
+    linear_model *m = fit_ok(X, y, W_N, W_P, 1, 0.95);
+    double beta[W_P], rss = m->rss, r2 = m->r2, aic = m->aic;
+    memcpy(beta, m->beta, sizeof beta);
+    linear_set_beta(m, X, y, beta);
+    assert_close(m->rss, rss, 1e-15, 0);
+    assert_close(m->r2, r2, 1e-15, 0);
+    assert_close(m->aic, aic, 1e-15, 0);
+    for (size_t j = 0; j < W_P; j++)
+        assert_true(isnan(m->se[j]) && isnan(m->t[j]) && isnan(m->low[j]));
+    double est, low, high;
+    linear_predict(m, X, &est, &low, &high);
+    assert_true(isnan(low) && isnan(high));
+
+    /* moved coefficients: RSS and MAE by their definitions */
+    beta[1] += 0.25;
+    beta[0] -= 1;
+    linear_set_beta(m, X, y, beta);
+    long double s2 = 0, sa = 0;
+    for (size_t i = 0; i < W_N; i++) {
+        long double e = y[i];
+        for (size_t j = 0; j < W_P; j++)
+            e -= X[i * W_P + j] * (long double)beta[j];
+        s2 += e * e;
+        sa += fabsl(e);
+        assert_close(m->residual[i], (double)e, 1e-14, 1e-13);
+    }
+    assert_true(m->rss > rss);
+    assert_close(m->rss, (double)s2, 1e-14, 0);
+    assert_close(m->mae, (double)(sa / W_N), 1e-14, 0);
+    assert_close(m->rmse, sqrt((double)(s2 / W_N)), 1e-14, 0);
+    linear_free(m);
+}
+
 static void test_linear_free_accepts_null(void **state)
 {
     (void)state;
@@ -740,6 +781,7 @@ int main(void)
         cmocka_unit_test(test_linear_constant_target_has_no_r2),
         cmocka_unit_test(test_linear_scaling_a_column_scales_its_beta),
         cmocka_unit_test(test_linear_degree7_polynomial_is_accurate),
+        cmocka_unit_test(test_linear_set_beta_recomputes_measures),
         cmocka_unit_test(test_linear_free_accepts_null),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -413,6 +413,46 @@ static void test_logistic_null_model_without_intercept_is_one_half(void **state)
     dataset_free(&d);
 }
 
+/* logistic_set_beta: the exact coefficients put back give the same
+ * measures; moved ones give the log-likelihood of its definition,
+ * sum y ln p + (1 - y) ln(1 - p), computed here in long double; standard
+ * errors and intervals become NaN. */
+static void test_logistic_set_beta_recomputes_measures(void **state)
+{
+    (void)state;
+    dataset d;
+    dataset_read("spector", &d);
+    logistic_model *m = fit_ok(d.X, d.y, d.n, d.p, 1, 0);
+    double beta[MAXT], ll = m->loglik, aic = m->aic, null = m->null_loglik;
+    memcpy(beta, m->beta, d.p * sizeof *beta);
+    rf_error e = {0};
+    assert_int_equal(logistic_set_beta(m, d.X, d.y, beta, &e), RF_OK);
+    assert_close(m->loglik, ll, 1e-15, 0);
+    assert_close(m->aic, aic, 1e-15, 0);
+    beta[1] *= 1.5;
+    assert_int_equal(logistic_set_beta(m, d.X, d.y, beta, &e), RF_OK);
+    long double want = 0;
+    for (size_t i = 0; i < d.n; i++) {
+        long double eta = 0;
+        for (size_t j = 0; j < d.p; j++)
+            eta += d.X[i * d.p + j] * (long double)beta[j];
+        long double p = 1 / (1 + expl(-eta));
+        want += d.y[i] ? logl(p) : logl(1 - p);
+        assert_close(m->prob[i], (double)p, 1e-14, 1e-300);
+    }
+    assert_true(m->loglik < ll);
+    assert_close(m->loglik, (double)want, 1e-13, 0);
+    assert_close(m->null_loglik, null, 1e-15, 0);
+    assert_close(m->deviance, -2 * (double)want, 1e-13, 0);
+    for (size_t j = 0; j < d.p; j++) {
+        assert_close(m->odds[j], exp(beta[j]), 1e-15, 0);
+        assert_true(isnan(m->se[j]) && isnan(m->z[j]) && isnan(m->pvalue[j])
+                    && isnan(m->low[j]) && isnan(m->odds_high[j]));
+    }
+    logistic_free(m);
+    dataset_free(&d);
+}
+
 static void test_logistic_rejects_bad_input(void **state)
 {
     (void)state;
@@ -447,6 +487,7 @@ int main(void)
         cmocka_unit_test(test_logistic_reports_quasi_separation),
         cmocka_unit_test(test_logistic_drops_constant_and_collinear_terms),
         cmocka_unit_test(test_logistic_null_model_without_intercept_is_one_half),
+        cmocka_unit_test(test_logistic_set_beta_recomputes_measures),
         cmocka_unit_test(test_logistic_rejects_bad_input),
     };
     return cmocka_run_group_tests_name("logistic", tests, NULL, NULL);

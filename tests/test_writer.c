@@ -361,6 +361,12 @@ static void test_writer_formulas_keep_cached_values(void **state)
                      RF_OK);
     assert_int_equal(writer_formula(s, 0, 3, "LN(A1-3)", NAN, WFMT_NONE),
                      RF_OK);
+    /* a formula with a text result keeps its text, markup and all */
+    assert_int_equal(writer_formula_text(s, 0, 4, "=IF(A1>=2,\"<yes> & co\","
+                                         "\"no\")", "<yes> & co", WFMT_NONE),
+                     RF_OK);
+    assert_int_equal(writer_formula_text(s, 0, 5, "IF(A1>=3,\"yes\",\"no\")",
+                                         "no", WFMT_NONE), RF_OK);
     commit_ok(w);
     read_back(f, f->path);
     char want[64];
@@ -377,6 +383,11 @@ static void test_writer_formulas_keep_cached_values(void **state)
                  1e-15, 0.0);
     /* No cached number rather than a misleading 0. */
     assert_string_equal(fact(f, "cached|Estimates|D1|"), "None");
+    hex_of("=IF(A1>=2,\"<yes> & co\",\"no\")", want);
+    snprintf(key, sizeof key, "f|%s", want);
+    assert_string_equal(cell(f, "Estimates", "E1"), key);
+    assert_string_equal(fact(f, "cached|Estimates|E1|"), "'<yes> & co'");
+    assert_string_equal(fact(f, "cached|Estimates|F1|"), "'no'");
 }
 
 static void test_writer_writes_text_as_text(void **state)
