@@ -134,7 +134,7 @@ test-deps:
 
 demo: deps
 	@$(MAKE) --no-print-directory all
-	./rowfit workbooks/house-prices.job
+	./rowfit workbooks/house-prices.job workbooks/applicants.job
 
 check: test-deps
 	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN) $(BUILD)/gen-houses $(FUZZ_BIN)

@@ -519,17 +519,19 @@ static rf_status class_label(design *d, intern *tlab, size_t o,
     size_t len;
     if (v->type == FV_NUMBER) {
         if (t && col >= 0 && table_cell_type(t, r, (size_t)col) == CELL_BOOL)
-            snprintf(buf, sizeof buf, "%s", v->num != 0 ? "true" : "false");
+            snprintf(buf, sizeof buf, "%s", v->num != 0 ? "TRUE" : "FALSE");
         else
             snprintf(buf, sizeof buf, "%.15Lg", v->num);
     } else {
         len = strlen(v->text);
         const char *s = table_trim_span(v->text, &len);
+        /* true and false as a spreadsheet shows its yes-no cells */
         static const char *const words[] = { "yes", "no", "true", "false" };
+        static const char *const shown[] = { "yes", "no", "TRUE", "FALSE" };
         text = NULL;
         for (size_t k = 0; k < 4 && !text; k++)
             if (table_word_is(s, len, words[k]))
-                text = words[k];
+                text = shown[k];
         if (text == NULL) {
             char *copy = strndup(s, len);
             if (copy == NULL)
@@ -634,8 +636,8 @@ static rf_status code_classes(design *d, const job *j, intern *tlab,
             goto out;
         }
     } else {
-        static const char *const yes[] = { "1", "yes", "true" };
-        static const char *const no[] = { "0", "no", "false" };
+        static const char *const yes[] = { "1", "yes", "TRUE" };
+        static const char *const no[] = { "0", "no", "FALSE" };
         for (size_t k = 0; k < 3 && positive < 0; k++) {
             if (strcmp(la, yes[k]) == 0 && strcmp(lb, no[k]) == 0)
                 positive = (long)a;

@@ -297,10 +297,17 @@ static int estimate_formula(strbuf *b, const design *d,
 static int predicted_formula(strbuf *b, const design *d, const est_layout *L,
                              uint32_t r, double threshold)
 {
-    char cell[32];
+    char cell[32], num[32];
     writer_cell_name(r, L->c_est, cell, sizeof cell);
+    /* the shortest text that reads back as the same double: 0.3, not
+     * 0.29999999999999999 */
+    for (int digits = 15; digits <= 17; digits++) {
+        snprintf(num, sizeof num, "%.*g", digits, threshold);
+        if (strtod(num, NULL) == threshold)
+            break;
+    }
     b->n = 0;
-    return sb_add(b, "=IF(%s>=%.17g,", cell, threshold)
+    return sb_add(b, "=IF(%s>=%s,", cell, num)
            || sb_quoted(b, d->positive) || sb_add(b, ",")
            || sb_quoted(b, d->negative) || sb_add(b, ")");
 }

@@ -23,3 +23,21 @@ exec "$PWD/rowfit" --force "$dir/house-prices.job"
 EOT
 chmod +x "$dir/run.sh"
 script -qec "$dir/run.sh" /dev/null | tr -d '\r'
+
+# The yes/no demo at the same size (invented applicants): the logistic fit
+# by Newton's method, then the same again by solver gradient.
+make --no-print-directory -s "$BUILD/gen-applicants"
+"$BUILD/gen-applicants" --rows "$ROWS" --new 1000 --out "$dir"
+cp workbooks/applicants.job "$dir/"
+sed 's/^model logistic/model logistic\nsolver gradient/' workbooks/applicants.job > "$dir/applicants-gradient.job"
+echo "bench: $ROWS applicants + 1000 new, $(du -h "$dir/applicants.csv" | cut -f1) of CSV"
+for job in applicants applicants-gradient; do
+    cat > "$dir/run.sh" <<EOT
+#!/bin/sh
+if [ -x /usr/bin/time ]; then
+    exec /usr/bin/time -f "bench: $job: %e s wall, %M kB peak memory" "$PWD/rowfit" --force "$dir/$job.job"
+fi
+exec "$PWD/rowfit" --force "$dir/$job.job"
+EOT
+    script -qec "$dir/run.sh" /dev/null | tr -d '\r'
+done
