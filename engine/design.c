@@ -624,7 +624,12 @@ static rf_status code_classes(design *d, const job *j, intern *tlab,
     const char *la = tlab->s[a], *lb = tlab->s[b];
     long positive = -1;
     if (j->positive) {
-        if (same_word(j->positive, la))
+        /* the exact spelling first: 'Done' and 'done' can be two labels */
+        if (strcmp(j->positive, la) == 0)
+            positive = (long)a;
+        else if (strcmp(j->positive, lb) == 0)
+            positive = (long)b;
+        else if (same_word(j->positive, la))
             positive = (long)a;
         else if (same_word(j->positive, lb))
             positive = (long)b;

@@ -22,8 +22,9 @@
  *  3. Ridge: the penalized log-likelihood is
  *         loglik(b) - (ridge / 2) * sum_j (s_j b_j)^2
  *     over the non-intercept kept terms, s_j the standard deviation of
- *     column j over the fitted rows (divisor n; the root mean square when
- *     that is 0), so the penalty is on the coefficients of standardized
+ *     column j over the fitted rows (divisor n) with an intercept, its root
+ *     mean square without one (as gradient.c standardizes, so the two
+ *     solvers solve one problem), so the penalty is on the coefficients of standardized
  *     inputs and does not depend on units. The Newton step of it is the
  *     WLS problem above with rows sqrt(ridge) * s_j * e_j appended
  *     (right-hand side -sqrt(ridge) * s_j * b_j).
@@ -286,19 +287,24 @@ static logistic_model *model_alloc(size_t n, size_t p)
     return m;
 }
 
-/* Standard deviation of column j over the rows (divisor n), or its root
- * mean square when the column is constant. */
-static double column_spread(const long double *X, size_t n, size_t p, size_t j)
+/* The scale of column j: with an intercept its standard deviation over the
+ * rows (divisor n), without one its root mean square; the absolute value
+ * when the column is constant. */
+static double column_spread(const long double *X, size_t n, size_t p, size_t j,
+                            int intercept)
 {
     long double s = 0, ss = 0;
     for (size_t i = 0; i < n; i++)
         s += X[i * p + j];
-    long double mean = s / n;
+    /* without an intercept the inputs cannot be centred (that would change
+     * the model), so their scale is the root mean square, as in
+     * gradient.c */
+    long double mean = intercept ? s / n : 0;
     for (size_t i = 0; i < n; i++)
         ss += (X[i * p + j] - mean) * (X[i * p + j] - mean);
     if (ss > 0)
         return (double)sqrtl(ss / n);
-    return (double)fabsl(mean);
+    return (double)fabsl(s / n);
 }
 
 /* The fitted probabilities and the likelihood measures of the linear
@@ -474,7 +480,7 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
             continue;
         w->col[k] = j;
         w->c[k] = lm->scale[j];
-        spread[k] = column_spread(X, n, p, j);
+        spread[k] = column_spread(X, n, p, j, intercept);
         /* the penalty row of the scaled coefficient g_k = b_j / c_k:
          * sqrt(ridge) s_j b_j = sqrt(ridge) s_j c_k g_k */
         if (ridge > 0 && !(intercept && j == 0))
@@ -495,7 +501,8 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
             size_t j = w->col[k];
             if (intercept && j == 0)
                 continue;
-            double v = fabs(w->g[k] * w->c[k]) * column_spread(X, n, p, j);
+            double v = fabs(w->g[k] * w->c[k])
+                       * column_spread(X, n, p, j, intercept);
             if (v > best) {
                 best = v;
                 m->separating_term = (long)j;

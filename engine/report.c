@@ -669,28 +669,37 @@ static void trow(writer_sheet *s, uint32_t *r, const char *measure,
     (*r)++;
 }
 
+/* Said of a measure whose classical degrees of freedom a penalty changes. */
+#define PENALISED "not defined for a penalised fit (ridge): its degrees of " \
+                  "freedom are not the count of terms"
+
 /* The rows of a linear fit. */
-static void summary_linear(writer_sheet *s, uint32_t *r, const design *d,
-                           const linear_model *m, int gradient)
+static void summary_linear(writer_sheet *s, uint32_t *r, const job *j,
+                           const design *d, const linear_model *m,
+                           int gradient)
 {
     char note[300];
+    int pen = j->ridge > 0;
     srow(s, r, "r squared", m->r2, WFMT_SIG,
          d->intercept ? NULL : "uncentred (no intercept): 1 - RSS / sum of y squared");
-    srow(s, r, "adjusted r squared", m->adj_r2, WFMT_SIG, NULL);
+    srow(s, r, "adjusted r squared", pen ? NAN : m->adj_r2, WFMT_SIG,
+         pen ? PENALISED : NULL);
     srow(s, r, "residual std error", m->sigma, WFMT_SIG, "sqrt(RSS / residual df)");
     srow(s, r, "rmse", m->rmse, WFMT_SIG, "sqrt(RSS / rows fitted)");
     srow(s, r, "mae", m->mae, WFMT_SIG, "mean absolute residual");
-    srow(s, r, "f statistic", m->fstat, WFMT_SIG,
-         isinf(m->fstat) ? "infinite: the fit is exact" : NULL);
-    srow(s, r, "f p value", m->fpvalue, WFMT_PVALUE,
-         isinf(m->fstat) ? "not defined: the fit is exact" : NULL);
+    srow(s, r, "f statistic", pen ? NAN : m->fstat, WFMT_SIG, pen ? PENALISED
+         : isinf(m->fstat) ? "infinite: the fit is exact" : NULL);
+    srow(s, r, "f p value", pen ? NAN : m->fpvalue, WFMT_PVALUE,
+         pen ? PENALISED
+         : isinf(m->fstat) ? "not defined: the fit is exact" : NULL);
     srow(s, r, "residual df", m->df_resid, WFMT_INTEGER, NULL);
-    srow(s, r, "aic", m->aic, WFMT_SIG,
-         isfinite(m->aic) ? "-2 log likelihood + 2 (terms estimated + 1)"
-                          : "not defined: the residuals are all zero");
-    srow(s, r, "bic", m->bic, WFMT_SIG,
-         isfinite(m->bic) ? "-2 log likelihood + ln(rows fitted) (terms estimated + 1)"
-                          : "not defined: the residuals are all zero");
+    srow(s, r, "aic", pen ? NAN : m->aic, WFMT_SIG, pen ? PENALISED
+         : isfinite(m->aic) ? "-2 log likelihood + 2 (terms estimated + 1)"
+                            : "not defined: the residuals are all zero");
+    srow(s, r, "bic", pen ? NAN : m->bic, WFMT_SIG, pen ? PENALISED
+         : isfinite(m->bic)
+             ? "-2 log likelihood + ln(rows fitted) (terms estimated + 1)"
+             : "not defined: the residuals are all zero");
     srow(s, r, "level", m->level, WFMT_PERCENT, gradient
          ? "confidence level (solver gradient gives no intervals)"
          : "confidence level of every low / high");
@@ -727,10 +736,11 @@ static void summary_logistic(writer_sheet *s, uint32_t *r, const job *j,
          : "-2 log likelihood of probability 0.5 for every row");
     srow(s, r, "residual deviance", m->deviance, WFMT_SIG,
          "-2 log likelihood");
-    srow(s, r, "aic", m->aic, WFMT_SIG,
-         "residual deviance + 2 (terms estimated)");
-    srow(s, r, "bic", m->bic, WFMT_SIG,
-         "residual deviance + ln(rows fitted) (terms estimated)");
+    int pen = j->ridge > 0;
+    srow(s, r, "aic", pen ? NAN : m->aic, WFMT_SIG, pen ? PENALISED
+         : "residual deviance + 2 (terms estimated)");
+    srow(s, r, "bic", pen ? NAN : m->bic, WFMT_SIG, pen ? PENALISED
+         : "residual deviance + ln(rows fitted) (terms estimated)");
     srow(s, r, "mcfadden r squared", m->mcfadden, WFMT_SIG,
          "1 - log likelihood / null log likelihood");
     snprintf(note, sizeof note, "share of fitted rows whose predicted label "
@@ -875,7 +885,7 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
              rank, ndropped);
     srow(s, &r, "terms", (double)d->p, WFMT_INTEGER, note);
     if (m)
-        summary_linear(s, &r, d, m, rm->gradient != NULL);
+        summary_linear(s, &r, j, d, m, rm->gradient != NULL);
     else
         summary_logistic(s, &r, j, d, rm);
     if (j->ridge > 0)

@@ -228,15 +228,16 @@ static rf_status fit_gradient(const job *j, const design *d, fit *f,
                  j->epochs_line ? j->epochs_line : j->solver_line);
         st = error_set(err, RF_EINPUT, where,
                        "solver gradient did not converge: %s after %ld "
-                       "epochs (cost %.6g, last epoch lowered it by %.2g of "
+                       "epoch%s (cost %.6g, last epoch lowered it by %.2g of "
                        "itself). %s, or use `solver exact`",
                        g->stop == GRADIENT_DIVERGED ? "the cost rose"
                        : g->stop == GRADIENT_NOTHING ? "nothing to fit"
-                       : "it reached the epoch cap", g->iterations, g->cost,
+                       : "it reached the epoch cap", g->iterations,
+                       g->iterations == 1 ? "" : "s", g->cost,
                        g->last_drop, g->stop == GRADIENT_DIVERGED
                        ? "Lower `rate`" : j->rate_line
-                       ? "Raise `epochs`, remove `rate` (the default step is "
-                         "the largest safe one)" : "Raise `epochs`");
+                       ? "Raise `epochs`, or remove `rate` (the default step "
+                         "lowers the cost at every epoch)" : "Raise `epochs`");
         goto out;
     }
     for (size_t k = 0, c = 0; k < p; k++)
