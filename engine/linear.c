@@ -698,22 +698,14 @@ int linear_accurate_digits(const linear_model *m)
     return d > 15 ? 15 : d < 0 ? 0 : (int)d;
 }
 
-void linear_predict(const linear_model *m, const long double *x, double *est,
-                    double *low, double *high)
+double linear_leverage(const linear_model *m, const long double *x)
 {
-    long double e = 0;
-    for (size_t j = 0; j < m->p; j++)
-        if (m->drop[j] == LINEAR_KEPT)
-            e += m->beta[j] * x[j];
-    *est = (double)e;
-    /* var(x'b) / s^2 = || R^-T (S x)_pivoted ||^2 : forward substitution,
+    /* x'(X'X)^-1 x = || R^-T (S x)_pivoted ||^2 : forward substitution,
      * stable where x'(X'X)^-1 x would cancel (Golub & Van Loan, 5.3) */
     size_t r = m->rank;
     double w[64], *wp = r <= 64 ? w : malloc(r * sizeof *wp);
-    if (wp == NULL) {
-        *low = *high = NAN;
-        return;
-    }
+    if (wp == NULL)
+        return NAN;
     long double h = 0;
     for (size_t k = 0; k < r; k++) {
         long double s = x[m->cols[k]] * m->scale[m->cols[k]];
@@ -724,8 +716,20 @@ void linear_predict(const linear_model *m, const long double *x, double *est,
     }
     if (wp != w)
         free(wp);
+    return (double)h;
+}
+
+void linear_predict(const linear_model *m, const long double *x, double *est,
+                    double *low, double *high)
+{
+    long double e = 0;
+    for (size_t j = 0; j < m->p; j++)
+        if (m->drop[j] == LINEAR_KEPT)
+            e += m->beta[j] * x[j];
+    *est = (double)e;
+    double h = linear_leverage(m, x);
     double s2 = m->df_resid > 0 ? m->rss / m->df_resid : NAN;
-    double half = m->tcrit * sqrt(s2 * (1 + (double)h));
+    double half = m->tcrit * sqrt(s2 * (1 + h));
     *low = *est - half;
     *high = *est + half;
 }

@@ -105,6 +105,11 @@ int linear_cov_from_r(const gsl_matrix *QR, size_t r, double *cov);
  * 2^-63)), between 0 and 15. */
 int linear_accurate_digits(const linear_model *m);
 
+/* x'(X'X)^-1 x for a row x (p values, same columns as X), over the kept
+ * terms: a fitted row's leverage (the diagonal of the hat matrix), from R,
+ * never from the inverse. NaN on no memory (more than 64 kept terms). */
+double linear_leverage(const linear_model *m, const long double *x);
+
 /* The estimate for a row x (p values, same columns as X) and its prediction
  * interval at the model's level. low/high are NaN when there are no
  * residual degrees of freedom. */
