@@ -698,25 +698,184 @@ int linear_accurate_digits(const linear_model *m)
     return d > 15 ? 15 : d < 0 ? 0 : (int)d;
 }
 
-double linear_leverage(const linear_model *m, const long double *x)
+/* q = R^-T (S x)_pivoted, the row of the thin Q factor of a row x (r
+ * values into q): forward substitution, stable where x'(X'X)^-1 x would
+ * cancel (Golub & Van Loan, Matrix Computations, 4th ed., sec. 5.3).
+ * Returns |q|^2, the row's leverage. */
+static long double q_row(const linear_model *m, const long double *x,
+                         double *q)
 {
-    /* x'(X'X)^-1 x = || R^-T (S x)_pivoted ||^2 : forward substitution,
-     * stable where x'(X'X)^-1 x would cancel (Golub & Van Loan, 5.3) */
     size_t r = m->rank;
-    double w[64], *wp = r <= 64 ? w : malloc(r * sizeof *wp);
-    if (wp == NULL)
-        return NAN;
     long double h = 0;
     for (size_t k = 0; k < r; k++) {
         long double s = x[m->cols[k]] * m->scale[m->cols[k]];
         for (size_t a = 0; a < k; a++)
-            s -= (long double)m->R[a * r + k] * wp[a];
-        wp[k] = (double)(s / m->R[k * r + k]);
-        h += (long double)wp[k] * wp[k];
+            s -= (long double)m->R[a * r + k] * q[a];
+        q[k] = (double)(s / m->R[k * r + k]);
+        h += (long double)q[k] * q[k];
     }
+    return h;
+}
+
+double linear_leverage(const linear_model *m, const long double *x)
+{
+    double w[64], *wp = m->rank <= 64 ? w : malloc(m->rank * sizeof *wp);
+    if (wp == NULL)
+        return NAN;
+    double h = (double)q_row(m, x, wp);
     if (wp != w)
         free(wp);
-    return (double)h;
+    return h;
+}
+
+/* A fold whose training rows lose a direction of the full design (a
+ * category level seen only in the held-out fold): the Cholesky factor of
+ * G_F = sum over training rows of q q' has a diagonal below this (G_F is
+ * near I for a fold that keeps every direction), and the fold is refitted
+ * instead. */
+#define CV_PIVOT_MIN 1e-6
+
+/* The fold refitted from its own training rows: the exact answer when the
+ * update cannot be trusted. */
+static rf_status cv_refit(const linear_model *m, const long double *X,
+                          const long double *y, const size_t *fold,
+                          size_t f, double *pred, rf_error *err)
+{
+    size_t n = m->n, p = m->p, nt = 0;
+    for (size_t i = 0; i < n; i++)
+        nt += fold[i] != f;
+    long double *Xt = malloc((nt ? nt : 1) * p * sizeof *Xt);
+    long double *yt = malloc((nt ? nt : 1) * sizeof *yt);
+    linear_model *mt = NULL;
+    rf_status st = RF_OK;
+    if (Xt == NULL || yt == NULL) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    for (size_t i = 0, t = 0; i < n; i++)
+        if (fold[i] != f) {
+            memcpy(Xt + t * p, X + i * p, p * sizeof *Xt);
+            yt[t++] = y[i];
+        }
+    if ((st = linear_fit(Xt, yt, nt, p, m->intercept, m->level, &mt, err)))
+        goto out;
+    for (size_t i = 0; i < n; i++)
+        if (fold[i] == f) {
+            long double e = 0;
+            for (size_t j = 0; j < p; j++)
+                if (mt->drop[j] == LINEAR_KEPT)
+                    e += X[i * p + j] * mt->beta[j];
+            pred[i] = (double)e;
+        }
+out:
+    linear_free(mt);
+    free(Xt);
+    free(yt);
+    return st;
+}
+
+rf_status linear_cv(const linear_model *m, const long double *X,
+                    const long double *y, const size_t *fold, size_t k,
+                    double *pred, size_t *refits, rf_error *err)
+{
+    size_t n = m->n, p = m->p, r = m->rank;
+    *refits = 0;
+    if (k < 2 || k > n)
+        return error_set(err, RF_EINPUT, NULL, "cross-validation needs "
+                         "between 2 and %zu folds, not %zu", n, k);
+    for (size_t i = 0; i < n; i++)
+        if (fold[i] >= k)
+            return error_set(err, RF_EINPUT, NULL, "row %zu has fold %zu of "
+                             "%zu", i + 1, fold[i], k);
+    int loo = k == n;
+    /* per fold: P_f = sum q q' (r x r) and u_f = sum q e (r); leave-one-
+     * out needs neither (the update is e / (1 - h)) */
+    size_t rr = r * r;
+    double *P = loo ? NULL : calloc(k * rr, sizeof *P);
+    double *u = loo ? NULL : calloc(k * r, sizeof *u);
+    double *q = malloc((r ? r : 1) * sizeof *q);
+    double *Q = loo ? NULL : malloc(n * (r ? r : 1) * sizeof *Q);
+    gsl_matrix *G = loo || r == 0 ? NULL : gsl_matrix_alloc(r, r);
+    gsl_vector *v = loo || r == 0 ? NULL : gsl_vector_alloc(r);
+    unsigned char *refit = loo ? NULL : calloc(k, 1);
+    rf_status st = RF_OK;
+    if (q == NULL || (!loo && (P == NULL || u == NULL || Q == NULL
+                               || refit == NULL
+                               || (r && (G == NULL || v == NULL))))) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    for (size_t i = 0; i < n; i++) {
+        double *qi = loo ? q : Q + i * r;
+        long double h = q_row(m, X + i * p, qi);
+        double e = m->residual[i];
+        if (loo) {
+            /* the PRESS residual e / (1 - h) (Allen, Technometrics 16
+             * (1974) 125); h = 1: the row alone decides a term */
+            pred[i] = h < 1 ? (double)(y[i] - e / (1 - h)) : NAN;
+            continue;
+        }
+        double *Pf = P + fold[i] * rr, *uf = u + fold[i] * r;
+        for (size_t a = 0; a < r; a++) {
+            uf[a] += qi[a] * e;
+            for (size_t b = 0; b <= a; b++)
+                Pf[a * r + b] += qi[a] * qi[b];
+        }
+    }
+    if (loo)
+        goto out;
+    /* Fold F: held-out residuals z = (I - U U')^-1 e_F, U the fold's rows
+     * of Q; by the Woodbury identity z = e_F + U G^-1 U'e_F with
+     * G = I - U'U = sum over the other folds' P (no cancellation: a sum of
+     * positive semidefinite parts). */
+    for (size_t f = 0; f < k; f++) {
+        for (size_t a = 0; a < r; a++)
+            for (size_t b = 0; b <= a; b++) {
+                double g = 0;
+                for (size_t o = 0; o < k; o++)
+                    if (o != f)
+                        g += P[o * rr + a * r + b];
+                gsl_matrix_set(G, a, b, g);
+                gsl_matrix_set(G, b, a, g);
+            }
+        int bad = r > 0 && gsl_linalg_cholesky_decomp1(G) != 0;
+        for (size_t a = 0; a < r && !bad; a++)
+            bad = !(gsl_matrix_get(G, a, a) > CV_PIVOT_MIN);
+        if (bad) {
+            refit[f] = 1;
+            continue;
+        }
+        for (size_t a = 0; a < r; a++)
+            gsl_vector_set(v, a, u[f * r + a]);
+        if (r && gsl_linalg_cholesky_svx(G, v) != 0) {
+            refit[f] = 1;
+            continue;
+        }
+        for (size_t i = 0; i < n; i++) {
+            if (fold[i] != f)
+                continue;
+            long double z = m->residual[i];
+            for (size_t a = 0; a < r; a++)
+                z += (long double)Q[i * r + a] * gsl_vector_get(v, a);
+            pred[i] = (double)(y[i] - z);
+        }
+    }
+    for (size_t f = 0; f < k && st == RF_OK; f++)
+        if (refit[f]) {
+            (*refits)++;
+            st = cv_refit(m, X, y, fold, f, pred, err);
+        }
+out:
+    free(P);
+    free(u);
+    free(q);
+    free(Q);
+    free(refit);
+    if (G)
+        gsl_matrix_free(G);
+    if (v)
+        gsl_vector_free(v);
+    return st;
 }
 
 void linear_predict(const linear_model *m, const long double *x, double *est,

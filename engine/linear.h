@@ -110,6 +110,20 @@ int linear_accurate_digits(const linear_model *m);
  * never from the inverse. NaN on no memory (more than 64 kept terms). */
 double linear_leverage(const linear_model *m, const long double *x);
 
+/* Cross-validation of the fitted model m (X, y as given to linear_fit):
+ * for every fitted row i, pred[i] is the estimate of the fit to the rows
+ * outside its fold fold[i] (0..k-1). No refit where an update is exact:
+ * from m's QR factor, the held-out residuals of fold F are
+ * (I - H_FF)^-1 e_F (Woodbury), O(n r^2) for all folds together; k = n is
+ * leave-one-out, e_i / (1 - h_i). A fold whose training rows lose a
+ * direction of the design (a category level seen only in that fold) is
+ * refitted with linear_fit, which drops what those rows cannot estimate;
+ * *refits counts them. Errors: RF_EINPUT for k outside 2..n or a fold out
+ * of range; what linear_fit gives on a refit; RF_ENOMEM. */
+rf_status linear_cv(const linear_model *m, const long double *X,
+                    const long double *y, const size_t *fold, size_t k,
+                    double *pred, size_t *refits, rf_error *err);
+
 /* The estimate for a row x (p values, same columns as X) and its prediction
  * interval at the model's level. low/high are NaN when there are no
  * residual degrees of freedom. */

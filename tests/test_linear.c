@@ -751,6 +751,128 @@ static void test_linear_set_beta_recomputes_measures(void **state)
     linear_free(m);
 }
 
+/* ------------------------------------------------------ cross-validation */
+
+/* Out-of-fold estimates the slow, obvious way: for each fold, fit the other
+ * rows and predict the fold's (the definition that linear_cv's update must
+ * reproduce). */
+static void brute_cv(const long double *X, const long double *y, size_t n,
+                     size_t p, int intercept, const size_t *fold, size_t k,
+                     double *pred)
+{
+    long double *Xt = malloc(n * p * sizeof *Xt), *yt = malloc(n * sizeof *yt);
+    assert_non_null(Xt);
+    assert_non_null(yt);
+    for (size_t f = 0; f < k; f++) {
+        size_t nt = 0;
+        for (size_t i = 0; i < n; i++)
+            if (fold[i] != f) {
+                memcpy(Xt + nt * p, X + i * p, p * sizeof *Xt);
+                yt[nt++] = y[i];
+            }
+        linear_model *m = fit_ok(Xt, yt, nt, p, intercept, 0.95);
+        for (size_t i = 0; i < n; i++)
+            if (fold[i] == f) {
+                long double e = 0;
+                for (size_t j = 0; j < p; j++)
+                    if (m->drop[j] == LINEAR_KEPT)
+                        e += X[i * p + j] * m->beta[j];
+                pred[i] = (double)e;
+            }
+        linear_free(m);
+    }
+    free(Xt);
+    free(yt);
+}
+
+/* A design of 40 invented rows: intercept, two inputs and a 0/1 indicator
+ * that is 1 only in rows 0, 1 and 2 (all in fold 0 below, so fold 0's
+ * training rows cannot estimate it). */
+#define CV_N 40
+#define CV_P 4
+static void cv_design(long double *X, long double *y)
+{
+    for (size_t i = 0; i < CV_N; i++) {
+        long double a = sinl(1.7L * i + 0.3L) * 10 + i * 0.25L;
+        long double b = cosl(0.9L * i * i + 1.1L) * 4;
+        X[i * CV_P] = 1;
+        X[i * CV_P + 1] = a;
+        X[i * CV_P + 2] = b;
+        X[i * CV_P + 3] = i < 3;
+        y[i] = 12.5L + 1.75L * a - 0.6L * b + 3 * (i < 3)
+               + sinl(7.3L * i) * 2.1L;   /* a deterministic "noise" */
+    }
+}
+
+static void test_linear_cv_equals_refitting_each_fold(void **state)
+{
+    (void)state;
+    long double X[CV_N * CV_P], y[CV_N];
+    cv_design(X, y);
+    linear_model *m = fit_ok(X, y, CV_N, CV_P, 1, 0.95);
+    size_t fold[CV_N], refits = 0;
+    double fast[CV_N], slow[CV_N];
+    rf_error e = {0};
+    /* 5 folds by i mod 5 except rows 0..2, which all go to fold 0 */
+    for (size_t i = 0; i < CV_N; i++)
+        fold[i] = i < 3 ? 0 : i % 5;
+    assert_int_equal(linear_cv(m, X, y, fold, 5, fast, &refits, &e), RF_OK);
+    brute_cv(X, y, CV_N, CV_P, 1, fold, 5, slow);
+    for (size_t i = 0; i < CV_N; i++)
+        assert_close(fast[i], slow[i], 1e-11, 1e-11);
+    /* fold 0 lost the indicator: refitted, not updated */
+    assert_int_equal(refits, 1);
+
+    /* without the lost direction, every fold is an update */
+    for (size_t i = 0; i < CV_N; i++)
+        fold[i] = i % 4;
+    assert_int_equal(linear_cv(m, X, y, fold, 4, fast, &refits, &e), RF_OK);
+    brute_cv(X, y, CV_N, CV_P, 1, fold, 4, slow);
+    for (size_t i = 0; i < CV_N; i++)
+        assert_close(fast[i], slow[i], 1e-11, 1e-11);
+    assert_int_equal(refits, 0);
+    linear_free(m);
+}
+
+/* Leave-one-out: the held-out residual is e_i / (1 - h_ii), the PRESS
+ * identity (Allen 1974), checked here against n refits to 10 digits. */
+static void test_linear_cv_leave_one_out_is_press(void **state)
+{
+    (void)state;
+    long double X[W_N * W_P], y[W_N];
+    well_design(X, y);
+    linear_model *m = fit_ok(X, y, W_N, W_P, 1, 0.95);
+    size_t fold[W_N], refits = 0;
+    double fast[W_N], slow[W_N];
+    rf_error e = {0};
+    for (size_t i = 0; i < W_N; i++)
+        fold[i] = i;
+    assert_int_equal(linear_cv(m, X, y, fold, W_N, fast, &refits, &e), RF_OK);
+    brute_cv(X, y, W_N, W_P, 1, fold, W_N, slow);
+    for (size_t i = 0; i < W_N; i++) {
+        double h = linear_leverage(m, X + i * W_P);
+        double press = m->residual[i] / (1 - h);
+        assert_close((double)y[i] - fast[i], press, 1e-12, 1e-12);
+        assert_close(fast[i], slow[i], 1e-10, 0);
+    }
+    /* the same rows in 3 folds without an intercept */
+    linear_model *m0 = fit_ok(X, y, W_N, W_P, 0, 0.95);
+    for (size_t i = 0; i < W_N; i++)
+        fold[i] = (i * 7) % 3;
+    assert_int_equal(linear_cv(m0, X, y, fold, 3, fast, &refits, &e), RF_OK);
+    brute_cv(X, y, W_N, W_P, 0, fold, 3, slow);
+    for (size_t i = 0; i < W_N; i++)
+        assert_close(fast[i], slow[i], 1e-11, 1e-11);
+    /* folds out of range */
+    fold[0] = 3;
+    assert_int_equal(linear_cv(m0, X, y, fold, 3, fast, &refits, &e),
+                     RF_EINPUT);
+    assert_int_equal(linear_cv(m0, X, y, fold, 1, fast, &refits, &e),
+                     RF_EINPUT);
+    linear_free(m);
+    linear_free(m0);
+}
+
 static void test_linear_free_accepts_null(void **state)
 {
     (void)state;
@@ -782,6 +904,8 @@ int main(void)
         cmocka_unit_test(test_linear_scaling_a_column_scales_its_beta),
         cmocka_unit_test(test_linear_degree7_polynomial_is_accurate),
         cmocka_unit_test(test_linear_set_beta_recomputes_measures),
+        cmocka_unit_test(test_linear_cv_equals_refitting_each_fold),
+        cmocka_unit_test(test_linear_cv_leave_one_out_is_press),
         cmocka_unit_test(test_linear_free_accepts_null),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
