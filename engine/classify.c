@@ -1,7 +1,8 @@
 /*
  * classify.c: measures of a yes/no model from observed classes and
  * predicted probabilities (classify.h). One sort of the probabilities
- * serves both the AUC and the Hosmer-Lemeshow risk groups. Not for fitting:
+ * serves both the AUC and the Hosmer-Lemeshow risk groups; the grouping
+ * rule is also offered alone (classify_risk_groups). Not for fitting:
  * the probabilities come from whichever model the caller ran.
  */
 #include "classify.h"
@@ -15,11 +16,37 @@
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_sort_double.h>
 
-/* floor(k n / 10) without forming k n, which could overflow for huge n. */
-static size_t decile_bound(size_t k, size_t n)
+/* floor(k n / groups) without forming k n, which could overflow for huge
+ * n; k <= groups <= CLASSIFY_GROUPS_MAX keeps k (n % groups) small. */
+static size_t group_bound(size_t k, size_t n, size_t groups)
 {
-    return k * (n / CLASSIFY_HL_GROUPS)
-         + k * (n % CLASSIFY_HL_GROUPS) / CLASSIFY_HL_GROUPS;
+    return k * (n / groups) + k * (n % groups) / groups;
+}
+
+/* The risk-group rule of classify.h over the rows sorted by p (idx): the
+ * end (one past the last sorted position) of each group into end[], which
+ * has room for `groups` entries; returns the number of groups (at least 1
+ * for n > 0). Shared by Hosmer-Lemeshow and classify_risk_groups, so that
+ * a calibration table at ten groups shows the groups of the test. */
+static size_t group_ends(const double *p, const size_t *idx, size_t n,
+                         size_t groups, size_t *end)
+{
+    size_t g = 0, k = 1;
+    while (k < groups && group_bound(k, n, groups) == 0)
+        k++;
+    for (size_t i = 0; i < n;) {
+        size_t j = i;
+        while (j < n && p[idx[j]] == p[idx[i]])
+            j++;
+        i = j;
+        if (i < n && i >= group_bound(k, n, groups)) {
+            end[g++] = i;
+            while (k < groups && group_bound(k, n, groups) <= i)
+                k++;
+        }
+    }
+    end[g++] = n;  /* the last group, closed by the end of the rows */
+    return g;
 }
 
 /* AUC as U / (n1 n0), U the Mann-Whitney count of (positive, negative)
@@ -63,25 +90,16 @@ static void hosmer_lemeshow(const double *y, const double *p,
     double gn[CLASSIFY_HL_GROUPS] = {0};  /* rows */
     double go[CLASSIFY_HL_GROUPS] = {0};  /* observed positives */
     double ge[CLASSIFY_HL_GROUPS] = {0};  /* expected: sum of p */
-    int g = 0;
-    size_t k = 1;
-    while (k < CLASSIFY_HL_GROUPS && decile_bound(k, n) == 0)
-        k++;
-    for (size_t i = 0; i < n;) {
-        size_t j = i;
-        for (; j < n && p[idx[j]] == p[idx[i]]; j++) {
-            gn[g]++;
-            go[g] += y[idx[j]];
-            ge[g] += p[idx[j]];
-        }
-        i = j;
-        if (i < n && i >= decile_bound(k, n)) {
-            g++;
-            while (k < CLASSIFY_HL_GROUPS && decile_bound(k, n) <= i)
-                k++;
+    size_t end[CLASSIFY_HL_GROUPS];
+    int g = (int)group_ends(p, idx, n, CLASSIFY_HL_GROUPS, end);
+    size_t j = 0;
+    for (int t = 0; t < g; t++) {
+        for (; j < end[t]; j++) {
+            gn[t]++;
+            go[t] += y[idx[j]];
+            ge[t] += p[idx[j]];
         }
     }
-    g++;  /* the last group, closed by the end of the rows */
 
     /* A group with n pbar (1 - pbar) = 0 has no variance to divide by. */
     for (;;) {
@@ -186,5 +204,43 @@ rf_status classify_measure(const double *y, const double *p, size_t n,
     hosmer_lemeshow(y, p, idx, n, &m);
     free(idx);
     *out = m;
+    return RF_OK;
+}
+
+rf_status classify_risk_groups(const double *p, size_t n, size_t groups,
+                               size_t *group, size_t *n_groups,
+                               rf_error *err)
+{
+    assert(n_groups != NULL);
+    if (n == 0)
+        return error_set(err, RF_EINPUT, NULL,
+                         "risk groups need at least one row");
+    if (groups == 0 || groups > CLASSIFY_GROUPS_MAX)
+        return error_set(err, RF_EINPUT, NULL,
+                         "risk groups: %zu groups asked for; from 1 to %d "
+                         "are possible", groups, CLASSIFY_GROUPS_MAX);
+    assert(p != NULL && group != NULL);
+    for (size_t i = 0; i < n; i++)
+        if (!(p[i] >= 0 && p[i] <= 1))
+            return error_set(err, RF_EINPUT, NULL,
+                             "probability %zu of %zu is %g, not between "
+                             "0 and 1", i + 1, n, p[i]);
+    if (n > SIZE_MAX / sizeof(size_t))
+        return error_nomem(err, NULL);
+    size_t *idx = malloc(n * sizeof *idx);
+    size_t *end = malloc(groups * sizeof *end);
+    if (idx == NULL || end == NULL) {
+        free(idx);
+        free(end);
+        return error_nomem(err, NULL);
+    }
+    gsl_sort_index(idx, p, 1, n);
+    size_t g = group_ends(p, idx, n, groups, end);
+    for (size_t t = 0, j = 0; t < g; t++)
+        for (; j < end[t]; j++)
+            group[idx[j]] = t;
+    *n_groups = g;
+    free(idx);
+    free(end);
     return RF_OK;
 }

@@ -19,6 +19,10 @@
 #define CLASSIFY_CLIP 1e-15
 /* Hosmer-Lemeshow: at most this many risk groups (deciles of risk). */
 #define CLASSIFY_HL_GROUPS 10
+/* classify_risk_groups: at most this many groups. A calibration table is
+ * read by a person, and the bound keeps the group-edge arithmetic
+ * (floor(k n / G), see classify.c) far from overflow. */
+#define CLASSIFY_GROUPS_MAX 1000
 
 typedef struct classify_measures {
     size_t n;
@@ -54,5 +58,20 @@ typedef struct classify_measures {
 rf_status classify_measure(const double *y, const double *p, size_t n,
                            double threshold, classify_measures *out,
                            rf_error *err);
+
+/* Risk groups by predicted probability, by the Hosmer-Lemeshow grouping
+ * rule above with `groups` in place of 10 (targets b_k = floor(k n /
+ * groups), tie blocks never split, before any merging): classify_measure's
+ * Hosmer-Lemeshow groups are the ones this gives for groups = 10, and a
+ * calibration table uses the same. p: n probabilities in [0, 1]; group
+ * (caller's, n entries) receives each row's group, 0 for the lowest
+ * probabilities up to *n_groups - 1; *n_groups is at most min(groups, n),
+ * fewer when tie blocks span targets, and every group is non-empty.
+ * Errors: RF_EINPUT for n = 0, groups 0 or above CLASSIFY_GROUPS_MAX, a p
+ * outside [0, 1] or not a number; RF_ENOMEM. On error group and *n_groups
+ * are unspecified. */
+rf_status classify_risk_groups(const double *p, size_t n, size_t groups,
+                               size_t *group, size_t *n_groups,
+                               rf_error *err);
 
 #endif

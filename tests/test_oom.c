@@ -52,6 +52,7 @@
 #include "../engine/logistic.h"
 #include "../engine/peek.h"
 #include "../engine/run.h"
+#include "../engine/validate.h"
 #include "../io/csv.h"
 #include "../io/grid.h"
 #include "../io/reader.h"
@@ -822,6 +823,80 @@ static void test_oom_classify_reports_every_failure(void **state)
     assert_true(oom_sweep("classify_measure", run_classify, &c) > 0);
 }
 
+/* ------------------------------------------------------------ validate */
+
+/* The twelve applicants again: stratified folds, out-of-fold measures
+ * (numeric and classify), the calibration table and the risk groups. */
+static rf_status run_validate_folds(void *ctx, rf_error *err)
+{
+    const yesno_ctx *c = ctx;
+    size_t fold[12];
+    rf_status st = validate_folds(12, 3, 20250611UL, c->y, fold, err);
+    oom_disarm();
+    if (st == RF_OK)
+        for (size_t i = 0; i < 12; i++)
+            assert_true(fold[i] < 3);
+    return st;
+}
+
+static rf_status run_validate_measure(void *ctx, rf_error *err)
+{
+    const yesno_ctx *c = ctx;
+    double p[12];
+    size_t fold[12];
+    for (size_t i = 0; i < 12; i++) {
+        p[i] = (double)(c->X[i * 3 + 1] / 100.0L);
+        fold[i] = i % 3;
+    }
+    validate_result *num = NULL, *cls = NULL;
+    rf_status st = validate_measure(c->y, p, fold, 12, 3, 0, 0.5, &num, err);
+    if (st == RF_OK)
+        st = validate_measure(c->y, p, fold, 12, 3, 1, 0.5, &cls, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(cls);
+    } else {
+        assert_int_equal(num->k, 3);
+        assert_int_equal(cls->all.n, 12);
+    }
+    validate_free(num);
+    validate_free(cls);
+    return st;
+}
+
+static rf_status run_validate_calibrate(void *ctx, rf_error *err)
+{
+    const yesno_ctx *c = ctx;
+    double p[12];
+    for (size_t i = 0; i < 12; i++)
+        p[i] = (double)(c->X[i * 3 + 1] / 100.0L);
+    validate_calibration *cal = NULL;
+    size_t group[12], g = 0;
+    rf_status st = validate_calibrate(c->y, p, 12, 4, &cal, err);
+    if (st == RF_OK)
+        st = classify_risk_groups(p, 12, 4, group, &g, err);
+    oom_disarm();
+    if (st == RF_OK) {
+        assert_int_equal(cal->groups, 4);
+        assert_int_equal(g, 4);
+    } else if (cal == NULL) {
+        assert_int_equal(g, 0);
+    }
+    validate_calibration_free(cal);
+    return st;
+}
+
+static void test_oom_validate_reports_every_failure(void **state)
+{
+    (void)state;
+    yesno_ctx c;
+    yesno_fill(&c);
+    assert_true(oom_sweep("validate_folds", run_validate_folds, &c) > 0);
+    assert_true(oom_sweep("validate_measure", run_validate_measure, &c) > 0);
+    assert_true(oom_sweep("validate_calibrate, classify_risk_groups",
+                          run_validate_calibrate, &c) > 0);
+}
+
 /* ------------------------------------------------------------ run_job */
 
 /* A whole job: read the job and two CSV files, a derive, a category, a
@@ -1364,6 +1439,7 @@ int main(void)
         cmocka_unit_test(test_oom_logistic_fit_reports_every_failure),
         cmocka_unit_test(test_oom_gradient_fit_reports_every_failure),
         cmocka_unit_test(test_oom_classify_reports_every_failure),
+        cmocka_unit_test(test_oom_validate_reports_every_failure),
         cmocka_unit_test_setup_teardown(
             test_oom_run_job_reports_every_failure, folder_setup,
             folder_teardown),
