@@ -935,7 +935,9 @@ static rf_status directive(parser *p, kw k)
         j->folds_line = p->line;
         return RF_OK;
     case KW_SEED:
-        if ((st = one_count(p, key, (unsigned long)-1, &u)) != RF_OK)
+        /* the generator (GSL's mt19937) keeps 32 bits of its seed: a
+         * larger one would silently repeat a smaller one's folds */
+        if ((st = one_count(p, key, 4294967295UL, &u)) != RF_OK)
             return st;
         j->seed = u;
         return RF_OK;
@@ -1103,10 +1105,6 @@ static int job_unavailable(const job *j, char *what, size_t len)
     if (j->n_reports > 0) {
         snprintf(what, len, "report %s", j->reports[0].kind);
         return j->reports[0].line;
-    }
-    if (j->folds_line && j->folds != 0) {
-        snprintf(what, len, "cross-validation (folds %d)", j->folds);
-        return j->folds_line;
     }
     return 0;
 }

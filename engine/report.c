@@ -44,6 +44,7 @@
 #define SUMMARY_LINEAR 13
 #define SUMMARY_LOGISTIC 18
 #define SUMMARY_GRADIENT 5
+#define SUMMARY_CV 4
 
 /* Points a chart plots at most (the first rows of Estimates). */
 #define CHART_POINTS_MAX 20000
@@ -135,7 +136,7 @@ static int sb_quoted(strbuf *b, const char *s)
 /* Layout of the Estimates sheet. */
 typedef struct est_layout {
     uint16_t c_source, c_row, c_id, c_target, c_est, c_res, c_low, c_high,
-        c_status, c_input0;
+        c_cv, c_status, c_input0;
     int has_id;
     size_t ncols;
     /* table columns that derived inputs read, shown after the inputs so
@@ -335,6 +336,7 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     L.c_res = c++;
     L.c_low = m ? c++ : 0;
     L.c_high = m ? c++ : 0;
+    L.c_cv = rm->cv ? c++ : 0;
     L.c_status = c++;
     L.c_input0 = c;
     L.c_extra0 = (uint16_t)(c + d->n_inputs);
@@ -374,6 +376,8 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         names[L.c_low] = "low";
         names[L.c_high] = "high";
     }
+    if (rm->cv)
+        names[L.c_cv] = m ? "cv estimate" : "cv probability";
     names[L.c_status] = "status";
     for (size_t i = 0; i < d->n_inputs; i++)
         names[L.c_input0 + i] = d->inputs[i].name;
@@ -390,6 +394,8 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         writer_column(s, L.c_low, 14, WFMT_FIXED2);
         writer_column(s, L.c_high, 14, WFMT_FIXED2);
     }
+    if (rm->cv)
+        writer_column(s, L.c_cv, 14, m ? WFMT_FIXED2 : WFMT_FIXED4);
     writer_column(s, L.c_status, 28, WFMT_NONE);
     for (size_t i = 0; i < d->n_inputs; i++) {
         double wdt = strlen(d->inputs[i].name) + 3.0;
@@ -490,6 +496,9 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
                      : b2 && m->df_resid > 0 && rm->gradient == NULL
                          ? " (interval not finite, left blank)" : "");
         }
+        if (rm->cv && row->status == ROW_FITTED)
+            writer_number(s, r, L.c_cv, rm->cv->pred[row->index],
+                          m ? WFMT_FIXED2 : WFMT_FIXED4, NULL);
         writer_text(s, r, L.c_status, status, WFMT_NONE);
         for (size_t i = 0; i < d->n_inputs; i++) {
             const design_input *in = &d->inputs[i];
@@ -564,7 +573,7 @@ static void drop_note(const design *d, const linear_drop *drop,
 
 /* The note of a kept term: which level a category term is compared with,
  * or why it has no standard error. */
-static void kept_note(const job *j, const design *d, const report_model *rm,
+static void kept_note(const design *d, const report_model *rm,
                       size_t k, char *note, size_t n)
 {
     note[0] = '\0';
@@ -581,7 +590,7 @@ static void kept_note(const job *j, const design *d, const report_model *rm,
                      in->levels[in->reference]);
     }
     const char *why = NULL;
-    if (j->ridge > 0)
+    if (rm->ridge > 0)
         why = "penalised fit (ridge): the classical standard errors, p values "
               "and intervals do not apply, so they are left blank";
     else if (rm->gradient)
@@ -594,7 +603,7 @@ static void kept_note(const job *j, const design *d, const report_model *rm,
     snprintf(note + used, n - used, "%s%s", used ? "; " : "", why);
 }
 
-static rf_status write_coefficients(writer *w, const job *j, const design *d,
+static rf_status write_coefficients(writer *w, const design *d,
                                     const report_model *rm, rf_error *err)
 {
     writer_sheet *s = writer_add_sheet(w, "Coefficients", err);
@@ -638,7 +647,7 @@ static rf_status write_coefficients(writer *w, const job *j, const design *d,
                 lm ? lm->odds_high[k] : NAN, 0 };
             for (uint16_t c = 1; c < c_note; c++)
                 writer_number(s, r, c, v[c - 1], fmts[c], NULL);
-            kept_note(j, d, rm, k, note, sizeof note);
+            kept_note(d, rm, k, note, sizeof note);
         }
         writer_text(s, r, c_note, note, WFMT_NONE);
     }
@@ -674,12 +683,13 @@ static void trow(writer_sheet *s, uint32_t *r, const char *measure,
                   "freedom are not the count of terms"
 
 /* The rows of a linear fit. */
-static void summary_linear(writer_sheet *s, uint32_t *r, const job *j,
-                           const design *d, const linear_model *m,
-                           int gradient)
+static void summary_linear(writer_sheet *s, uint32_t *r, const design *d,
+                           const report_model *rm)
 {
     char note[300];
-    int pen = j->ridge > 0;
+    const linear_model *m = rm->linear;
+    int gradient = rm->gradient != NULL;
+    int pen = rm->ridge > 0;
     srow(s, r, "r squared", m->r2, WFMT_SIG,
          d->intercept ? NULL : "uncentred (no intercept): 1 - RSS / sum of y squared");
     srow(s, r, "adjusted r squared", pen ? NAN : m->adj_r2, WFMT_SIG,
@@ -718,7 +728,7 @@ static void summary_linear(writer_sheet *s, uint32_t *r, const job *j,
 }
 
 /* The rows of a logistic fit. */
-static void summary_logistic(writer_sheet *s, uint32_t *r, const job *j,
+static void summary_logistic(writer_sheet *s, uint32_t *r,
                              const design *d, const report_model *rm)
 {
     const logistic_model *m = rm->logistic;
@@ -729,14 +739,14 @@ static void summary_logistic(writer_sheet *s, uint32_t *r, const job *j,
              d->n_positive, d->negative, d->n_negative);
     trow(s, r, "positive class", d->positive, note);
     srow(s, r, "log likelihood", m->loglik, WFMT_SIG,
-         j->ridge > 0 ? "of the penalised estimates, without the penalty"
+         rm->ridge > 0 ? "of the penalised estimates, without the penalty"
                       : NULL);
     srow(s, r, "null deviance", m->null_deviance, WFMT_SIG, d->intercept
          ? "-2 log likelihood of the intercept-only model"
          : "-2 log likelihood of probability 0.5 for every row");
     srow(s, r, "residual deviance", m->deviance, WFMT_SIG,
          "-2 log likelihood");
-    int pen = j->ridge > 0;
+    int pen = rm->ridge > 0;
     srow(s, r, "aic", pen ? NAN : m->aic, WFMT_SIG, pen ? PENALISED
          : "residual deviance + 2 (terms estimated)");
     srow(s, r, "bic", pen ? NAN : m->bic, WFMT_SIG, pen ? PENALISED
@@ -779,7 +789,7 @@ static void summary_logistic(writer_sheet *s, uint32_t *r, const job *j,
              "under 1e-12 relative and the largest step is under 1e-10");
     srow(s, r, "threshold", c->threshold, WFMT_SIG, "probability at or above "
          "which a row is predicted positive");
-    srow(s, r, "level", m->level, WFMT_PERCENT, rm->gradient || j->ridge > 0
+    srow(s, r, "level", m->level, WFMT_PERCENT, rm->gradient || rm->ridge > 0
          ? "confidence level (this fit gives no intervals)"
          : "confidence level of every low / high");
 }
@@ -817,14 +827,44 @@ static void summary_gradient(writer_sheet *s, uint32_t *r,
                    "coefficients (the worst term)");
 }
 
+/* The cross-validation rows: the folds and the three pooled measures. */
+static void summary_cv(writer_sheet *s, uint32_t *r, const report_model *rm)
+{
+    const report_cv *cv = rm->cv;
+    const validate_result *v = cv->res;
+    char note[300];
+    snprintf(note, sizeof note, "k-fold cross-validation: folds drawn with "
+             "seed %lu%s; each fold's rows estimated by a fit to the other "
+             "rows (see the Validation sheet)", cv->seed,
+             cv->stratified ? ", stratified by class" : "");
+    srow(s, r, "folds", (double)cv->k, WFMT_INTEGER, note);
+    static const char *const lin[] = { "cv rmse", "cv mae", "cv r squared" };
+    static const char *const cls[] = { "cv accuracy", "cv auc",
+                                       "cv log loss" };
+    static const char *const lin_note[] = {
+        "root mean square of the out-of-fold errors, over every fitted row",
+        "mean absolute out-of-fold error, over every fitted row",
+        "1 - (sum of squared out-of-fold errors) / (sum of squares about "
+        "the mean target)" };
+    static const char *const cls_note[] = {
+        "share of fitted rows whose out-of-fold label is their class",
+        "AUC of the out-of-fold probabilities, every fitted row",
+        "mean log loss of the out-of-fold probabilities" };
+    for (int k = 0; k < VALIDATE_MEASURES; k++)
+        srow(s, r, (rm->logistic ? cls : lin)[k], v ? v->pooled[k] : NAN,
+             WFMT_SIG,
+             v ? (rm->logistic ? cls_note : lin_note)[k]
+               : "not measured: fewer than two folds could be fitted");
+}
+
 /* A small labelled 2x2 block: rows the observed class, columns the
  * predicted one. */
 static void confusion_block(writer_sheet *s, uint32_t *r, const design *d,
-                            const classify_measures *c)
+                            const classify_measures *c, const char *rows)
 {
     char head[300];
-    snprintf(head, sizeof head, "confusion matrix (fitted rows, threshold "
-             "%g)", c->threshold);
+    snprintf(head, sizeof head, "confusion matrix (%s, threshold %g)", rows,
+             c->threshold);
     writer_text(s, *r, 0, head, WFMT_BOLD);
     (*r)++;
     snprintf(head, sizeof head, "predicted %s", d->positive);
@@ -860,7 +900,7 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
     uint32_t measures = SUMMARY_COMMON
         + (m ? SUMMARY_LINEAR : SUMMARY_LOGISTIC)
         + (rm->gradient ? SUMMARY_GRADIENT + (m ? 1 : 0) : 0)
-        + (j->ridge > 0 ? 1 : 0);
+        + (rm->ridge > 0 ? 1 : 0) + (rm->cv ? SUMMARY_CV : 0);
     writer_header(s, names, 3, measures);
     uint32_t r = 1;
     char note[300];
@@ -885,19 +925,25 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
              rank, ndropped);
     srow(s, &r, "terms", (double)d->p, WFMT_INTEGER, note);
     if (m)
-        summary_linear(s, &r, j, d, m, rm->gradient != NULL);
+        summary_linear(s, &r, d, rm);
     else
-        summary_logistic(s, &r, j, d, rm);
-    if (j->ridge > 0)
-        srow(s, &r, "ridge", j->ridge, WFMT_SIG, "L2 penalty (ridge / 2) "
-             "times the sum of squared coefficients of the standardized "
-             "inputs; the intercept is not penalised");
+        summary_logistic(s, &r, d, rm);
+    if (rm->ridge > 0)
+        srow(s, &r, "ridge", rm->ridge, WFMT_SIG, j->ridge_auto
+             ? "chosen by cross-validation (the one-standard-error rule; "
+               "the path is on the Validation sheet); the L2 penalty on the "
+               "coefficients of the standardized inputs, intercept not "
+               "penalised"
+             : "L2 penalty (ridge / 2) times the sum of squared coefficients "
+               "of the standardized inputs; the intercept is not penalised");
+    if (rm->cv)
+        summary_cv(s, &r, rm);
     if (rm->gradient)
         summary_gradient(s, &r, rm);
     assert(r - 1 == measures);  /* the autofilter covers them all */
     r++;
     if (lm) {
-        confusion_block(s, &r, d, rm->cm);
+        confusion_block(s, &r, d, rm->cm, "fitted rows");
         r++;
         trow(s, &r, "caution", "scoring people", CAUTION_PEOPLE);
         return writer_status(w, err);
@@ -923,6 +969,150 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
     writer_scatter(s, 1, 4, title, "estimate", xr, j->target.name, yr);
     snprintf(title, sizeof title, "residual against estimate%s", cap);
     writer_scatter(s, 17, 4, title, "estimate", xr, "residual", rr);
+    return writer_status(w, err);
+}
+
+/* The Validation sheet: each fold's measures, their mean and spread, how
+ * the folds were fitted; the ridge path; for a yes/no target the
+ * calibration table and the out-of-fold confusion matrix. */
+static rf_status write_validation(writer *w, const design *d,
+                                  const report_model *rm, rf_error *err)
+{
+    const report_cv *cv = rm->cv;
+    const validate_result *v = cv->res;
+    writer_sheet *s = writer_add_sheet(w, "Validation", err);
+    if (s == NULL)
+        return err->status;
+    int cls = rm->logistic != NULL;
+    const char *names[6] = { "fold", "rows", cls ? "accuracy" : "rmse",
+                             cls ? "auc" : "mae",
+                             cls ? "log loss" : "r squared", "note" };
+    writer_column(s, 0, 20, WFMT_NONE);
+    for (uint16_t c = 1; c < 5; c++)
+        writer_column(s, c, 16, WFMT_SIG);
+    writer_column(s, 5, 70, WFMT_NONE);
+    writer_header(s, names, 6, v ? (uint32_t)v->k : 0);
+    uint32_t r = 1;
+    char note[400];
+    if (v) {
+        for (size_t f = 0; f < v->k; f++, r++) {
+            writer_number(s, r, 0, (double)(f + 1), WFMT_INTEGER, NULL);
+            writer_number(s, r, 1, (double)v->folds[f].rows, WFMT_INTEGER,
+                          NULL);
+            for (int k = 0; k < VALIDATE_MEASURES; k++)
+                writer_number(s, r, (uint16_t)(2 + k), v->folds[f].m[k],
+                              WFMT_SIG, NULL);
+            if (!cls && isnan(v->folds[f].m[VALIDATE_R2]))
+                writer_text(s, r, 5, "r squared not defined: the fold's "
+                            "targets are all equal", WFMT_NONE);
+            else if (cls && isnan(v->folds[f].m[VALIDATE_AUC]))
+                writer_text(s, r, 5, "auc not defined: the fold holds one "
+                            "class only", WFMT_NONE);
+        }
+        static const char *const what[3] = { "mean", "sd", "all rows" };
+        static const char *const why[3] = {
+            "mean over the folds where the measure is defined",
+            "standard deviation over the folds (divisor folds - 1)",
+            "every fitted row's out-of-fold value at once (Summary's cv "
+            "measures)" };
+        for (int a = 0; a < 3; a++, r++) {
+            writer_text(s, r, 0, what[a], WFMT_BOLD);
+            for (int k = 0; k < VALIDATE_MEASURES; k++)
+                writer_number(s, r, (uint16_t)(2 + k),
+                              a == 0 ? v->mean[k] : a == 1 ? v->sd[k]
+                                                           : v->pooled[k],
+                              WFMT_SIG, NULL);
+            if (a == 2) {
+                size_t used = 0;
+                for (size_t f = 0; f < v->k; f++)
+                    used += v->folds[f].rows;
+                writer_number(s, r, 1, (double)used, WFMT_INTEGER, NULL);
+            }
+            writer_text(s, r, 5, why[a], WFMT_NONE);
+        }
+    } else {
+        writer_text(s, r++, 0, "not measured: fewer than two folds could be "
+                    "fitted", WFMT_NONE);
+    }
+    r++;
+    snprintf(note, sizeof note, "%zu folds drawn with seed %lu%s; %s. "
+             "What a fit learns from its rows (the coefficients, the "
+             "standardizing of a penalty%s) is learned from each fold's "
+             "training rows only.", cv->k, cv->seed,
+             cv->stratified ? ", stratified by class" : "", cv->method,
+             cv->G ? ", the ridge choice" : "");
+    writer_text(s, r, 0, "method", WFMT_BOLD);
+    writer_text(s, r++, 1, note, WFMT_NONE);
+    if (cv->refits) {
+        snprintf(note, sizeof note, "%zu fold%s refitted from scratch: "
+                 "%s training rows cannot estimate every term (a category "
+                 "level seen only in the fold), so the terms they cannot "
+                 "estimate are left out of that fold's fit",
+                 cv->refits, cv->refits == 1 ? "" : "s",
+                 cv->refits == 1 ? "its" : "their");
+        writer_text(s, r++, 1, note, WFMT_NONE);
+    }
+    if (cv->failed) {
+        snprintf(note, sizeof note, "%zu fold%s could not be fitted (the "
+                 "classes are separated within the training rows); their "
+                 "rows have no out-of-fold value and are left out of the "
+                 "measures", cv->failed, cv->failed == 1 ? "" : "s");
+        writer_text(s, r++, 1, note, WFMT_NONE);
+    }
+    r++;
+    if (cv->G) {
+        writer_text(s, r, 0, "ridge path", WFMT_BOLD);
+        writer_text(s, r, 1, cls ? "cv log loss" : "cv mse", WFMT_BOLD);
+        writer_text(s, r, 2, "standard error", WFMT_BOLD);
+        writer_text(s, r++, 5, "the mean over the folds of each fold's "
+                    "error, and its standard error (sd / sqrt(folds)); the "
+                    "chosen penalty is the largest within one standard error "
+                    "of the best", WFMT_NONE);
+        for (size_t g = 0; g < cv->G; g++, r++) {
+            writer_number(s, r, 0, cv->grid[g], WFMT_SIG, NULL);
+            writer_number(s, r, 1, cv->mean[g], WFMT_SIG, NULL);
+            writer_number(s, r, 2, cv->se[g], WFMT_SIG, NULL);
+            if (g == cv->chosen || g == cv->best)
+                writer_text(s, r, 5, g == cv->chosen && g == cv->best
+                            ? "chosen (also the smallest error)"
+                            : g == cv->chosen ? "chosen"
+                                              : "smallest error", WFMT_BOLD);
+        }
+        r++;
+    }
+    if (cls && cv->cal) {
+        const validate_calibration *c = cv->cal;
+        static const char *const head[6] = {
+            "risk group", "rows", "mean probability", "observed rate",
+            "lowest probability", "highest probability" };
+        uint32_t top = r;
+        for (uint16_t k = 0; k < 6; k++)
+            writer_text(s, r, k, head[k], WFMT_BOLD);
+        r++;
+        for (size_t g = 0; g < c->groups; g++, r++) {
+            writer_number(s, r, 0, (double)(g + 1), WFMT_INTEGER, NULL);
+            writer_number(s, r, 1, (double)c->rows[g], WFMT_INTEGER, NULL);
+            writer_number(s, r, 2, c->mean_p[g], WFMT_SIG, NULL);
+            writer_number(s, r, 3, c->rate[g], WFMT_SIG, NULL);
+            writer_number(s, r, 4, c->p_low[g], WFMT_SIG, NULL);
+            writer_number(s, r, 5, c->p_high[g], WFMT_SIG, NULL);
+        }
+        writer_text(s, r++, 0, "calibration: out-of-fold probabilities in "
+                    "groups by predicted risk (deciles, ties kept "
+                    "together); a well calibrated model's observed rate "
+                    "follows its mean probability", WFMT_NONE);
+        char xr[64], yr[64];
+        snprintf(xr, sizeof xr, "=Validation!$C$%u:$C$%zu", top + 2,
+                 top + 1 + c->groups);
+        snprintf(yr, sizeof yr, "=Validation!$D$%u:$D$%zu", top + 2,
+                 top + 1 + c->groups);
+        writer_scatter(s, top, 7, "observed rate against mean probability "
+                       "(out of fold)", "mean probability", xr,
+                       "observed rate", yr);
+        r++;
+        if (v)
+            confusion_block(s, &r, d, &v->all, "out-of-fold probabilities");
+    }
     return writer_status(w, err);
 }
 
@@ -1005,9 +1195,11 @@ rf_status report_write(writer *w, const job *j, const table *data,
     assert((rm->linear == NULL) != (rm->logistic == NULL));
     if ((st = write_estimates(w, j, data, score, d, rm, warn, err)))
         return st;
-    if ((st = write_coefficients(w, j, d, rm, err)))
+    if ((st = write_coefficients(w, d, rm, err)))
         return st;
     if ((st = write_summary(w, j, data, score, d, rm, err)))
+        return st;
+    if (rm->cv && (st = write_validation(w, d, rm, err)))
         return st;
     return write_job(w, j, facts, warn,
                      rm->logistic ? CAUTION_PEOPLE : CAUTION_PRICE, err);

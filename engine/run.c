@@ -22,6 +22,7 @@
 #include "linear.h"
 #include "logistic.h"
 #include "report.h"
+#include "validate.h"
 
 #ifndef ROWFIT_VERSION
 #define ROWFIT_VERSION "0.0.0"
@@ -160,6 +161,12 @@ typedef struct fit {
     double *y;               /* logistic: the 0/1 target as doubles */
     classify_measures cm;
     report_model rm;
+    /* cross-validation */
+    report_cv cv;
+    size_t *fold;
+    double *cv_pred;
+    validate_result *cv_res;
+    validate_calibration *cv_cal;
 } fit;
 
 static void fit_free(fit *f)
@@ -168,6 +175,167 @@ static void fit_free(fit *f)
     logistic_free(f->logit);
     gradient_free(f->grad);
     free(f->y);
+    free(f->fold);
+    free(f->cv_pred);
+    validate_free(f->cv_res);
+    validate_calibration_free(f->cv_cal);
+}
+
+/* Folds for the job: `folds K`, or by default 5 when there are at least
+ * CV_DEFAULT_MIN_ROWS fitted rows (contract), none below. */
+#define CV_DEFAULT_FOLDS 5
+#define CV_DEFAULT_MIN_ROWS 50
+
+static size_t job_folds(const job *j, size_t n)
+{
+    if (j->folds >= 0)
+        return (size_t)j->folds;
+    return n >= CV_DEFAULT_MIN_ROWS ? CV_DEFAULT_FOLDS : 0;
+}
+
+/* Logistic folds: each fold's training rows refitted by logistic_fit (the
+ * standardizing of the ridge penalty and the rank decisions are then the
+ * training rows' own), its held-out rows given their probability. A fold
+ * that separates without a penalty, or does not converge, gives its rows
+ * no probability (NaN) and counts as failed. */
+static rf_status cv_logistic(const job *j, const design *d, fit *f,
+                             rf_error *err)
+{
+    size_t n = d->n_fit, p = d->p, k = f->cv.k;
+    long double *Xt = malloc((n ? n : 1) * p * sizeof *Xt);
+    double *yt = malloc((n ? n : 1) * sizeof *yt);
+    rf_status st = RF_OK;
+    if (Xt == NULL || yt == NULL) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    for (size_t fo = 0; fo < k; fo++) {
+        size_t nt = 0;
+        for (size_t i = 0; i < n; i++)
+            if (f->fold[i] != fo) {
+                memcpy(Xt + nt * p, d->X + i * p, p * sizeof *Xt);
+                yt[nt++] = f->y[i];
+            }
+        logistic_model *m = NULL;
+        rf_error e2;
+        memset(&e2, 0, sizeof e2);
+        st = logistic_fit(Xt, yt, nt, p, d->intercept, j->level, j->ridge,
+                          &m, &e2);
+        if (st == RF_ENOMEM || st == RF_ESYSTEM) {
+            *err = e2;
+            goto out;
+        }
+        int ok = st == RF_OK && m->converged
+                 && (m->separation == SEPARATION_NONE || j->ridge > 0);
+        st = RF_OK;
+        for (size_t i = 0; i < n; i++)
+            if (f->fold[i] == fo)
+                f->cv_pred[i] = ok ? logistic_predict(m, d->X + i * p) : NAN;
+        f->cv.failed += !ok;
+        logistic_free(m);
+    }
+out:
+    free(Xt);
+    free(yt);
+    return st;
+}
+
+/* The measures of the rows that have an out-of-fold value, their folds
+ * renumbered without the failed ones; none when fewer than two folds are
+ * left. */
+static rf_status cv_measure(const job *j, const design *d, fit *f,
+                            int classify, rf_error *err)
+{
+    size_t n = d->n_fit, k = f->cv.k, m = 0, km = 0;
+    size_t *map = malloc(k * sizeof *map), *fo = malloc(n * sizeof *fo);
+    double *yy = malloc(n * sizeof *yy), *pp = malloc(n * sizeof *pp);
+    rf_status st = RF_OK;
+    if (map == NULL || fo == NULL || yy == NULL || pp == NULL) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    for (size_t c = 0; c < k; c++)
+        map[c] = (size_t)-1;
+    for (size_t i = 0; i < n; i++) {
+        if (!isfinite(f->cv_pred[i]))
+            continue;
+        if (map[f->fold[i]] == (size_t)-1)
+            map[f->fold[i]] = km++;
+        fo[m] = map[f->fold[i]];
+        yy[m] = (double)d->y[i];
+        pp[m++] = f->cv_pred[i];
+    }
+    if (km >= 2) {
+        st = validate_measure(yy, pp, fo, m, km, classify, j->threshold,
+                              &f->cv_res, err);
+        if (st == RF_OK && classify)
+            st = validate_calibrate(yy, pp, m, CLASSIFY_HL_GROUPS,
+                                    &f->cv_cal, err);
+        if (st)
+            st = at_model(j, st, err);
+    }
+out:
+    free(map);
+    free(fo);
+    free(yy);
+    free(pp);
+    return st;
+}
+
+/* k-fold cross-validation of the fitted model (before solver gradient
+ * replaces the exact coefficients: the folds are fitted by the exact
+ * solver of the same problem). */
+static rf_status cross_validate(const job *j, const design *d, fit *f,
+                                rf_warnings *warn, rf_error *err)
+{
+    size_t n = d->n_fit, k = job_folds(j, n);
+    if (k == 0)
+        return RF_OK;
+    if (k > n) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file, j->folds_line);
+        return error_set(err, RF_EINPUT, where, "folds %zu needs at least "
+                         "%zu fitted rows; there are %zu", k, k, n);
+    }
+    int classify = j->model == MODEL_LOGISTIC;
+    f->cv.k = k;
+    f->cv.seed = j->seed;
+    f->cv.stratified = classify;
+    f->fold = malloc(n * sizeof *f->fold);
+    f->cv_pred = malloc(n * sizeof *f->cv_pred);
+    if (f->fold == NULL || f->cv_pred == NULL)
+        return error_nomem(err, NULL);
+    rf_status st = validate_folds(n, k, j->seed, classify ? f->y : NULL,
+                                  f->fold, err);
+    if (st)
+        return at_model(j, st, err);
+    if (classify) {
+        f->cv.method = "each fold's training rows refitted by Newton's "
+                       "method (IRLS)";
+        st = cv_logistic(j, d, f, err);
+    } else {
+        f->cv.method = "each fold's estimates updated from the full fit's "
+                       "QR factor (exact, the same as refitting)";
+        st = linear_cv(f->lin, d->X, d->y, f->fold, k, f->cv_pred,
+                       &f->cv.refits, err);
+        st = at_model(j, st, err);
+    }
+    if (st)
+        return st;
+    if (f->cv.failed
+        && (st = error_warn(warn, NULL, "cross-validation: %zu of %zu "
+                            "folds could not be fitted (the classes are "
+                            "separated within their training rows); their "
+                            "rows have no cv probability. A `ridge` "
+                            "penalty helps", f->cv.failed, k)))
+        return st;
+    if ((st = cv_measure(j, d, f, classify, err)))
+        return st;
+    f->cv.pred = f->cv_pred;
+    f->cv.res = f->cv_res;
+    f->cv.cal = f->cv_cal;
+    f->rm.cv = &f->cv;
+    return RF_OK;
 }
 
 /* Significant digits two coefficient vectors share, the worst kept term:
@@ -267,7 +435,7 @@ out:
  * probabilities. Separation without a penalty and non-convergence stop
  * the job, at the model line, with what to do. */
 static rf_status fit_logistic(const job *j, const design *d, fit *f,
-                              rf_error *err)
+                              rf_warnings *warn, rf_error *err)
 {
     size_t n = d->n_fit;
     if ((f->y = malloc((n ? n : 1) * sizeof *f->y)) == NULL)
@@ -304,6 +472,8 @@ static rf_status fit_logistic(const job *j, const design *d, fit *f,
                          m->iterations >= LOGISTIC_ITER_MAX
                          ? "the step cap" : "no step improved the fit");
     f->rm.logistic = m;
+    if ((st = cross_validate(j, d, f, warn, err)))
+        return st;
     if (j->solver == SOLVER_GRADIENT
         && (st = fit_gradient(j, d, f, m->drop, err)))
         return st;
@@ -320,8 +490,9 @@ static rf_status fit_model(const job *j, const design *d, fit *f,
     rf_status st;
     memset(f, 0, sizeof *f);
     f->rm.agree_digits = NAN;
+    f->rm.ridge = j->ridge;
     if (j->model == MODEL_LOGISTIC) {
-        if ((st = fit_logistic(j, d, f, err)))
+        if ((st = fit_logistic(j, d, f, warn, err)))
             return st;
     } else {
         if ((st = linear_fit(d->X, d->y, d->n_fit, d->p, d->intercept,
@@ -336,6 +507,8 @@ static rf_status fit_model(const job *j, const design *d, fit *f,
                                 "correct digits in the coefficients; centring "
                                 "inputs or fewer polynomial terms helps",
                                 m->cond, linear_accurate_digits(m))))
+            return st;
+        if ((st = cross_validate(j, d, f, warn, err)))
             return st;
         if (j->solver == SOLVER_GRADIENT
             && (st = fit_gradient(j, d, f, m->drop, err)))

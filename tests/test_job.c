@@ -808,9 +808,6 @@ static void test_job_rejects_features_not_available_yet(void **state)
         {"report selection-rates", BASE
          "report selection-rates by district\n", 5,
          "report selection-rates is not available yet"},
-        {"folds", BASE "folds 5\n", 5,
-         "cross-validation (folds 5) is not available yet"},
-        {"folds at limit", BASE "folds 1000\n", 5, "not available yet"},
     };
     run_cases(c, N(c));
 }
