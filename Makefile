@@ -139,11 +139,13 @@ demo: deps
 check: test-deps
 	@$(MAKE) --no-print-directory $(PROG) $(TEST_BIN) $(BUILD)/gen-houses $(FUZZ_BIN)
 	@/usr/bin/python3 tests/oracle/logit_oracle.py $(BUILD)/oracle
+	@/usr/bin/python3 tests/oracle/influence_oracle.py $(BUILD)/oracle
 	@ROWFIT=$(PROG) BUILD=$(BUILD) GEN=$(BUILD)/gen-houses ROWFIT_ORACLE_DIR=$(BUILD)/oracle \
 	    sh tests/run.sh $(TEST_BIN)
 
 unit: $(TEST_BIN)
 	@/usr/bin/python3 tests/oracle/logit_oracle.py $(BUILD)/oracle
+	@/usr/bin/python3 tests/oracle/influence_oracle.py $(BUILD)/oracle
 	@for t in $(TEST_BIN); do ROWFIT_ORACLE_DIR=$(BUILD)/oracle $$t || exit 1; done
 
 # tests/bench_readers.c: the readers against the physical limits (inflate +

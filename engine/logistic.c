@@ -52,6 +52,12 @@
  *     Wald z, normal p value, Wald interval, odds ratios (Hosmer et al.,
  *     sec. 1.4 and 3.3). With ridge > 0 they are NaN: the classical
  *     standard errors do not apply to a penalized estimate.
+ *  8. The model keeps the R factor of the weighted rows at the fit (with
+ *     ridge > 0, of the weighted rows and the penalty rows, so R'R is the
+ *     penalized information X'WX + P) for logistic_leverage, the diagonal
+ *     of the hat matrix W^1/2 X (X'WX + P)^-1 X' W^1/2 (Pregibon, "Logistic
+ *     regression diagnostics", Ann. Statist. 9 (1981) 705-724; Hosmer et
+ *     al., ch. 5). logistic_set_beta factors again at its coefficients.
  */
 #include "logistic.h"
 
@@ -239,10 +245,70 @@ static int irls_covariance(const irls *w, double *cov)
     return 0;
 }
 
+/* What the model keeps of the fit for logistic_leverage, in m->priv. */
+typedef struct factor {
+    size_t r;
+    int valid;       /* 0: no factor (separation without a penalty) */
+    size_t *col;     /* r: design column of kept column k (as irls->col) */
+    double *c;       /* r: its power-of-two scale */
+    double *pen;     /* r: its penalty row entry, 0 without ridge */
+    double *R;       /* r x r upper triangle, pivoted, of the scaled
+                        weighted rows (and penalty rows) */
+    size_t *pcol;    /* r: design column of pivoted column a */
+    double *pscale;  /* r: its scale */
+} factor;
+
+static void factor_free(factor *f)
+{
+    if (f == NULL)
+        return;
+    free(f->col);
+    free(f->c);
+    free(f->pen);
+    free(f->R);
+    free(f->pcol);
+    free(f->pscale);
+    free(f);
+}
+
+static factor *factor_alloc(size_t r)
+{
+    factor *f = calloc(1, sizeof *f);
+    if (f == NULL)
+        return NULL;
+    f->r = r;
+    f->col = malloc(r * sizeof *f->col);
+    f->c = malloc(r * sizeof *f->c);
+    f->pen = malloc(r * sizeof *f->pen);
+    f->R = malloc(r * r * sizeof *f->R);
+    f->pcol = malloc(r * sizeof *f->pcol);
+    f->pscale = malloc(r * sizeof *f->pscale);
+    if (!f->col || !f->c || !f->pen || !f->R || !f->pcol || !f->pscale) {
+        factor_free(f);
+        return NULL;
+    }
+    return f;
+}
+
+/* Copies R and its column order from w's factored A into f. */
+static void factor_keep(factor *f, const irls *w)
+{
+    size_t r = w->r;
+    for (size_t a = 0; a < r; a++) {
+        size_t k = gsl_permutation_get(w->perm, a);
+        f->pcol[a] = w->col[k];
+        f->pscale[a] = w->c[k];
+        for (size_t b = 0; b < r; b++)
+            f->R[a * r + b] = b >= a ? gsl_matrix_get(w->A, a, b) : 0.0;
+    }
+    f->valid = 1;
+}
+
 void logistic_free(logistic_model *m)
 {
     if (m == NULL)
         return;
+    factor_free(m->priv);
     free(m->beta);
     free(m->se);
     free(m->z);
@@ -439,6 +505,7 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
 
     rf_status st = RF_ENOMEM;
     irls *w = NULL;
+    factor *fac = NULL;
     double *cov = NULL;
     long double *yl = NULL;
     linear_model *lm = NULL;
@@ -470,7 +537,8 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
 
     w = irls_alloc(n, p, r, ridge > 0);
     cov = malloc(r * r * sizeof *cov);
-    if (w == NULL || cov == NULL)
+    m->priv = factor_alloc(r);
+    if (w == NULL || cov == NULL || m->priv == NULL)
         goto fail;
     w->X = X;
     w->y = y;
@@ -487,6 +555,11 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
             w->pen[k] = sqrt(ridge) * spread[k] * w->c[k];
         k++;
     }
+
+    fac = m->priv;
+    memcpy(fac->col, w->col, r * sizeof *fac->col);
+    memcpy(fac->c, w->c, r * sizeof *fac->c);
+    memcpy(fac->pen, w->pen, r * sizeof *fac->pen);
 
     /* 2-6. the iterations */
     if (irls_run(w, m)) {
@@ -545,6 +618,14 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
             m->odds_low[j] = exp(m->low[j]);
             m->odds_high[j] = exp(m->high[j]);
         }
+        factor_keep(fac, w);  /* A holds the weighted rows at the fit */
+    } else {
+        /* 8. with the penalty rows: R'R = X'WX + P at the fit */
+        if (irls_factor(w, 1)) {
+            st = error_set(err, RF_ESYSTEM, NULL, "QR factorization failed");
+            goto fail;
+        }
+        factor_keep(fac, w);
     }
     st = RF_OK;
 done:
@@ -574,14 +655,19 @@ rf_status logistic_set_beta(logistic_model *m, const long double *X,
                             const double *y, const double *beta,
                             rf_error *err)
 {
-    long double *eta = malloc((m->n ? m->n : 1) * sizeof *eta);
-    if (eta == NULL)
+    /* allocated first, so a failure leaves the model as it was */
+    irls *w = irls_alloc(m->n, m->p, m->rank, m->ridge > 0);
+    if (w == NULL)
         return error_nomem(err, NULL);
+    long double *eta = w->eta;
+    int finite = 1;
     for (size_t j = 0; j < m->p; j++) {
         m->beta[j] = m->drop[j] == LINEAR_KEPT ? beta[j] : NAN;
         m->odds[j] = exp(m->beta[j]);
         m->se[j] = m->z[j] = m->pvalue[j] = m->low[j] = m->high[j] = NAN;
         m->odds_low[j] = m->odds_high[j] = NAN;
+        if (m->drop[j] == LINEAR_KEPT && !isfinite(beta[j]))
+            finite = 0;
     }
     for (size_t i = 0; i < m->n; i++) {
         long double e = 0;
@@ -591,6 +677,55 @@ rf_status logistic_set_beta(logistic_model *m, const long double *X,
         eta[i] = e;
     }
     eta_measures(m, y, eta);
-    free(eta);
-    return RF_OK;
+
+    /* the factor at the new probabilities, for logistic_leverage */
+    rf_status st = RF_OK;
+    factor *f = m->priv;
+    if (f != NULL) {
+        f->valid = 0;
+        if (finite) {
+            w->X = X;
+            w->y = y;
+            memcpy(w->col, f->col, w->r * sizeof *w->col);
+            memcpy(w->c, f->c, w->r * sizeof *w->c);
+            memcpy(w->pen, f->pen, w->r * sizeof *w->pen);
+            if (irls_factor(w, m->ridge > 0))
+                st = error_set(err, RF_ESYSTEM, NULL,
+                               "QR factorization failed");
+            else
+                factor_keep(f, w);
+        }
+    }
+    irls_free(w);
+    return st;
+}
+
+double logistic_leverage(const logistic_model *m, const long double *x)
+{
+    const factor *f = m->priv;
+    if (f == NULL || !f->valid)
+        return NAN;
+    long double e = 0;
+    for (size_t j = 0; j < m->p; j++)
+        if (m->drop[j] == LINEAR_KEPT)
+            e += m->beta[j] * x[j];
+    /* the row's weight as irls_factor forms it */
+    long double pi = 1 / (1 + expl(-e)), qi = 1 / (1 + expl(e));
+    long double wt = pi * qi;
+    if (wt < W_MIN)
+        wt = W_MIN;
+    long double sw = sqrtl(wt);
+    /* h = || R^-T (w^1/2 S x)_pivoted ||^2 by forward substitution, as
+     * linear_leverage; rank <= LINEAR_RANK_MAX, so no allocation */
+    size_t r = f->r;
+    double v[LINEAR_RANK_MAX];
+    long double h = 0;
+    for (size_t k = 0; k < r; k++) {
+        long double s = sw * x[f->pcol[k]] * f->pscale[k];
+        for (size_t a = 0; a < k; a++)
+            s -= (long double)f->R[a * r + k] * v[a];
+        v[k] = (double)(s / f->R[k * r + k]);
+        h += (long double)v[k] * v[k];
+    }
+    return (double)h;
 }

@@ -44,7 +44,8 @@ typedef struct logistic_model {
 
     double *prob;              /* n fitted probabilities */
 
-    void *priv;                /* private to logistic.c */
+    void *priv;                /* private to logistic.c: the R factor at
+                                  the fit, for logistic_leverage */
 } logistic_model;
 
 /* Fits y (n values, each 0 or 1) on X (n x p, row-major; column 0 all ones
@@ -59,14 +60,26 @@ void logistic_free(logistic_model *m);  /* accepts NULL */
 
 /* Replaces the coefficients with beta (p values from another solver of the
  * same problem, such as gradient descent; dropped terms ignored) and
- * recomputes the probabilities and likelihood measures. Standard errors,
- * z, p values and every interval become NaN: they belong to the exact
- * fit. X and y as given to logistic_fit. Errors: RF_ENOMEM. */
+ * recomputes the probabilities and likelihood measures, and the factor of
+ * logistic_leverage at the new probabilities. Standard errors, z, p values
+ * and every interval become NaN: they belong to the exact fit. X and y as
+ * given to logistic_fit. Errors: RF_ENOMEM (the model is left as it was),
+ * RF_ESYSTEM (QR failed; logistic_leverage then gives NaN). */
 rf_status logistic_set_beta(logistic_model *m, const long double *X,
                             const double *y, const double *beta,
                             rf_error *err);
 
 /* The probability of the positive class for a row x (p values). */
 double logistic_predict(const logistic_model *m, const long double *x);
+
+/* The leverage of a row x (p values, same columns as X) at the fit:
+ * h = w x'(X'WX + P)^-1 x, w = p(1-p) the row's IRLS weight at the fitted
+ * probability, W the weights of the fitted rows, P the ridge penalty (0
+ * without ridge). For a fitted row, the diagonal of the hat matrix of the
+ * last IRLS step (Pregibon 1981; Hosmer, Lemeshow & Sturdivant, 3rd ed.,
+ * ch. 5). From the kept R factor by forward substitution, never an
+ * inverse; no allocation. NaN when the fit has no finite coefficients
+ * (separation without ridge) or the last logistic_set_beta failed. */
+double logistic_leverage(const logistic_model *m, const long double *x);
 
 #endif

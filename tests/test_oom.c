@@ -45,6 +45,7 @@
 
 #include "../engine/classify.h"
 #include "../engine/design.h"
+#include "../engine/diagnose.h"
 #include "../engine/formula.h"
 #include "../engine/job.h"
 #include "../engine/gradient.h"
@@ -897,6 +898,102 @@ static void test_oom_validate_reports_every_failure(void **state)
                           run_validate_calibrate, &c) > 0);
 }
 
+/* ------------------------------------------------------------ diagnose */
+
+/* The models are fitted before the sweep (their own failures are swept
+ * above); the target is the diagnostics alone. */
+typedef struct diagnose_ctx {
+    const long double *X;
+    const double *y;
+    size_t n, p;
+    linear_model *lin;
+    logistic_model *logit;
+} diagnose_ctx;
+
+static rf_status run_diagnose_linear(void *ctx, rf_error *err)
+{
+    const diagnose_ctx *c = ctx;
+    diagnose_result *d = NULL;
+    rf_status st = diagnose_linear(c->lin, c->X, &d, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(d);
+    } else {
+        assert_int_equal(d->n, c->n);
+        assert_int_equal(d->p, c->lin->rank);
+    }
+    diagnose_free(d);
+    return st;
+}
+
+static rf_status run_diagnose_logistic(void *ctx, rf_error *err)
+{
+    const diagnose_ctx *c = ctx;
+    diagnose_result *d = NULL;
+    rf_status st = diagnose_logistic(c->logit, c->X, c->y, &d, err);
+    oom_disarm();
+    if (st != RF_OK) {
+        assert_null(d);
+    } else {
+        assert_int_equal(d->n, c->n);
+        assert_non_null(d->pearson);
+        assert_true(isfinite(d->leverage[0]));
+    }
+    diagnose_free(d);
+    return st;
+}
+
+static rf_status run_diagnose_vif(void *ctx, rf_error *err)
+{
+    const diagnose_ctx *c = ctx;
+    double vif[4];
+    rf_status st = diagnose_vif(c->X, c->n, c->p, 1, c->lin->drop, vif, err);
+    oom_disarm();
+    if (st == RF_OK)  /* x1 and x2 kept, x3 = x1 + x2 dropped */
+        assert_true(vif[1] >= 1 && vif[2] >= 1 && isnan(vif[3]));
+    return st;
+}
+
+static void test_oom_diagnose_linear_and_vif(void **state)
+{
+    (void)state;
+    /* the design of the linear_fit sweep (x3 = x1 + x2 is dropped) */
+    static const double x1[8] = { 2.385, 1.5, 3.75, 4.125, 0.5, 2.0, 5.25,
+                                  3.0 };
+    static const double x2[8] = { 1.0, 4.5, 2.25, 0.75, 3.5, 5.0, 1.25,
+                                  2.75 };
+    linear_ctx lc;
+    for (size_t i = 0; i < 8; i++) {
+        lc.X[i * 4 + 0] = 1;
+        lc.X[i * 4 + 1] = x1[i];
+        lc.X[i * 4 + 2] = x2[i];
+        lc.X[i * 4 + 3] = (long double)x1[i] + x2[i];
+        lc.y[i] = 3.5L + 2.25L * x1[i] - 1.125L * x2[i]
+                  + (i % 2 ? 0.125L : -0.125L);
+    }
+    diagnose_ctx c = { lc.X, NULL, 8, 4, NULL, NULL };
+    rf_error e = {0};
+    assert_int_equal(linear_fit(lc.X, lc.y, 8, 4, 1, 0.95, &c.lin, &e),
+                     RF_OK);
+    assert_true(oom_sweep("diagnose_linear", run_diagnose_linear, &c) > 0);
+    assert_true(oom_sweep("diagnose_vif", run_diagnose_vif, &c) > 0);
+    linear_free(c.lin);
+}
+
+static void test_oom_diagnose_logistic(void **state)
+{
+    (void)state;
+    yesno_ctx yc;
+    yesno_fill(&yc);
+    diagnose_ctx c = { yc.X, yc.y, 12, 3, NULL, NULL };
+    rf_error e = {0};
+    assert_int_equal(logistic_fit(yc.X, yc.y, 12, 3, 1, 0.95, 0.5, &c.logit,
+                                  &e), RF_OK);
+    assert_true(oom_sweep("diagnose_logistic", run_diagnose_logistic, &c)
+                > 0);
+    logistic_free(c.logit);
+}
+
 /* ------------------------------------------------------------ run_job */
 
 /* A whole job: read the job and two CSV files, a derive, a category, a
@@ -1440,6 +1537,8 @@ int main(void)
         cmocka_unit_test(test_oom_gradient_fit_reports_every_failure),
         cmocka_unit_test(test_oom_classify_reports_every_failure),
         cmocka_unit_test(test_oom_validate_reports_every_failure),
+        cmocka_unit_test(test_oom_diagnose_linear_and_vif),
+        cmocka_unit_test(test_oom_diagnose_logistic),
         cmocka_unit_test_setup_teardown(
             test_oom_run_job_reports_every_failure, folder_setup,
             folder_teardown),
