@@ -52,6 +52,7 @@
 #include "../engine/linear.h"
 #include "../engine/logistic.h"
 #include "../engine/peek.h"
+#include "../engine/ridge.h"
 #include "../engine/run.h"
 #include "../engine/validate.h"
 #include "../io/csv.h"
@@ -804,6 +805,61 @@ static void test_oom_gradient_fit_reports_every_failure(void **state)
     assert_true(oom_sweep("gradient_fit", run_gradient, &c) > 0);
 }
 
+/* ------------------------------------------------------------ ridge */
+
+/* The linear context of linear_fit's sweep (x3 = x1 + x2 dropped by the
+ * drops linear_fit gives), fitted at one penalty and as a path on a fold. */
+typedef struct ridge_ctx {
+    linear_ctx lin;
+    linear_drop drop[4];
+} ridge_ctx;
+
+static rf_status run_ridge(void *ctx, rf_error *err)
+{
+    const ridge_ctx *c = ctx;
+    double beta[4], pb[4];
+    ridge_path *r = NULL;
+    const size_t fold[6] = { 0, 1, 3, 4, 6, 7 };
+    rf_status st = ridge_fit(c->lin.X, c->lin.y, 8, 4, 1, c->drop, 2.5, beta,
+                             err);
+    if (st == RF_OK)
+        st = ridge_path_create(c->lin.X, c->lin.y, 8, 4, 1, c->drop, fold, 6,
+                               &r, err);
+    if (st == RF_OK)
+        st = ridge_path_solve(r, 2.5, pb, err);
+    oom_disarm();
+    if (st == RF_OK) {
+        assert_true(isnan(beta[3]) && isnan(pb[3]));
+        assert_true(isfinite(beta[1]) && isfinite(pb[1]));
+    } else {
+        assert_null(r);   /* a failed create leaves no path */
+    }
+    ridge_path_free(r);
+    return st;
+}
+
+static void test_oom_ridge_reports_every_failure(void **state)
+{
+    (void)state;
+    static const double x1[8] = { 2.385, 1.5, 3.75, 4.125, 0.5, 2.0, 5.25,
+                                  3.0 };
+    static const double x2[8] = { 1.0, 4.5, 2.25, 0.75, 3.5, 5.0, 1.25,
+                                  2.75 };
+    ridge_ctx c;
+    for (size_t i = 0; i < 8; i++) {
+        c.lin.X[i * 4 + 0] = 1;
+        c.lin.X[i * 4 + 1] = x1[i];
+        c.lin.X[i * 4 + 2] = x2[i];
+        c.lin.X[i * 4 + 3] = (long double)x1[i] + x2[i];
+        c.lin.y[i] = 3.5L + 2.25L * x1[i] - 1.125L * x2[i]
+                     + (i % 2 ? 0.125L : -0.125L);
+    }
+    for (size_t j = 0; j < 3; j++)
+        c.drop[j] = LINEAR_KEPT;
+    c.drop[3] = LINEAR_DROP_COLLINEAR;
+    assert_true(oom_sweep("ridge_fit+ridge_path", run_ridge, &c) > 0);
+}
+
 static rf_status run_classify(void *ctx, rf_error *err)
 {
     const yesno_ctx *c = ctx;
@@ -1535,6 +1591,7 @@ int main(void)
         cmocka_unit_test(test_oom_linear_fit_reports_every_failure),
         cmocka_unit_test(test_oom_logistic_fit_reports_every_failure),
         cmocka_unit_test(test_oom_gradient_fit_reports_every_failure),
+        cmocka_unit_test(test_oom_ridge_reports_every_failure),
         cmocka_unit_test(test_oom_classify_reports_every_failure),
         cmocka_unit_test(test_oom_validate_reports_every_failure),
         cmocka_unit_test(test_oom_diagnose_linear_and_vif),
