@@ -1090,18 +1090,6 @@ static int job_unavailable(const job *j, char *what, size_t len)
         snprintf(what, len, "model %s", job_model_name(j->model));
         return j->model_line;
     }
-    if (j->ridge_auto) {
-        snprintf(what, len, "ridge auto");
-        return j->ridge_line;
-    }
-    /* the exact linear solver has no penalty yet; gradient descent and
-     * the logistic model have one */
-    if (j->ridge_line && j->ridge != 0 && j->model == MODEL_LINEAR
-        && j->solver != SOLVER_GRADIENT) {
-        snprintf(what, len, "ridge with model linear and solver exact (use "
-                 "solver gradient for a penalised linear fit)");
-        return j->ridge_line;
-    }
     if (j->n_reports > 0) {
         snprintf(what, len, "report %s", j->reports[0].kind);
         return j->reports[0].line;

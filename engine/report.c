@@ -611,25 +611,32 @@ static rf_status write_coefficients(writer *w, const design *d,
         return err->status;
     const linear_model *m = rm->linear;
     const logistic_model *lm = rm->logistic;
-    static const char *const names[] = { "term", "estimate", "std error",
-                                         "t", "p value", "low", "high",
-                                         "odds ratio", "odds low",
-                                         "odds high", "note" };
-    const double widths[] = { 24, 16, 14, 10, 10, 16, 16, 14, 14, 14, 60 };
-    const writer_format fmts[] = { WFMT_NONE, WFMT_SIG, WFMT_SIG, WFMT_FIXED4,
-                                   WFMT_PVALUE, WFMT_SIG, WFMT_SIG, WFMT_SIG,
-                                   WFMT_SIG, WFMT_SIG, WFMT_NONE };
-    /* linear: the first 7 and note; logistic: all, z for t */
-    const char *shown[11];
-    uint16_t nc = 0, c_note = lm ? 10 : 7;
-    for (uint16_t c = 0; c < 11; c++) {
-        if (m && c >= 7 && c < 10)
-            continue;
-        shown[nc] = c == 3 && lm ? "z" : names[c];
-        writer_column(s, nc, widths[c], fmts[c]);
-        nc++;
+    enum { C_TERM, C_EST, C_SE, C_STAT, C_P, C_LOW, C_HIGH, C_ODDS,
+           C_ODDS_LOW, C_ODDS_HIGH, C_VIF, C_NOTE, C_ALL };
+    static const char *const names[C_ALL] = {
+        "term", "estimate", "std error", "t", "p value", "low", "high",
+        "odds ratio", "odds low", "odds high", "vif", "note" };
+    static const double widths[C_ALL] = { 24, 16, 14, 10, 10, 16, 16, 14, 14,
+                                          14, 10, 60 };
+    static const writer_format fmts[C_ALL] = {
+        WFMT_NONE, WFMT_SIG, WFMT_SIG, WFMT_FIXED4, WFMT_PVALUE, WFMT_SIG,
+        WFMT_SIG, WFMT_SIG, WFMT_SIG, WFMT_SIG, WFMT_FIXED2, WFMT_NONE };
+    /* linear: up to high, vif, note; logistic: up to odds high (z for t),
+     * note */
+    int col[C_ALL], nc = 0;
+    const char *shown[C_ALL];
+    for (int c = 0; c < C_ALL; c++) {
+        int on = c <= C_HIGH || c == C_NOTE
+                 || (lm && c >= C_ODDS && c <= C_ODDS_HIGH)
+                 || (c == C_VIF && rm->vif);
+        col[c] = on ? nc : -1;
+        if (on) {
+            shown[nc] = c == C_STAT && lm ? "z" : names[c];
+            writer_column(s, (uint16_t)nc, widths[c], fmts[c]);
+            nc++;
+        }
     }
-    writer_header(s, shown, nc, (uint32_t)d->p);
+    writer_header(s, shown, (size_t)nc, (uint32_t)d->p);
     const linear_drop *drop = m ? m->drop : lm->drop;
     const size_t *with = m ? m->with : lm->with;
     const size_t *n_with = m ? m->n_with : lm->n_with;
@@ -639,17 +646,18 @@ static rf_status write_coefficients(writer *w, const design *d,
         writer_text(s, r, 0, d->term[k], WFMT_NONE);
         drop_note(d, drop, with, n_with, k, d->X, note, sizeof note);
         if (drop[k] == LINEAR_KEPT) {
-            const double v[10] = {
-                m ? m->beta[k] : lm->beta[k], m ? m->se[k] : lm->se[k],
+            double v[C_ALL] = {
+                0, m ? m->beta[k] : lm->beta[k], m ? m->se[k] : lm->se[k],
                 m ? m->t[k] : lm->z[k], m ? m->pvalue[k] : lm->pvalue[k],
                 m ? m->low[k] : lm->low[k], m ? m->high[k] : lm->high[k],
                 lm ? lm->odds[k] : NAN, lm ? lm->odds_low[k] : NAN,
-                lm ? lm->odds_high[k] : NAN, 0 };
-            for (uint16_t c = 1; c < c_note; c++)
-                writer_number(s, r, c, v[c - 1], fmts[c], NULL);
+                lm ? lm->odds_high[k] : NAN, rm->vif ? rm->vif[k] : NAN, 0 };
+            for (int c = C_EST; c < C_NOTE; c++)
+                if (col[c] >= 0)
+                    writer_number(s, r, (uint16_t)col[c], v[c], fmts[c], NULL);
             kept_note(d, rm, k, note, sizeof note);
         }
-        writer_text(s, r, c_note, note, WFMT_NONE);
+        writer_text(s, r, (uint16_t)col[C_NOTE], note, WFMT_NONE);
     }
     return writer_status(w, err);
 }
@@ -815,16 +823,9 @@ static void summary_gradient(writer_sheet *s, uint32_t *r,
     srow(s, r, "rate", g->rate, WFMT_SIG, "step size on the standardized "
          "scale (1 / Lipschitz constant of the gradient unless the job sets "
          "rate)");
-    if (rm->logistic)
-        srow(s, r, "agreement with exact", rm->agree_digits, WFMT_SIG,
-             "significant digits shared with solver exact's coefficients "
-             "(the worst term)");
-    else
-        srow(s, r, "agreement with exact", rm->agree_digits, WFMT_SIG,
-             isnan(rm->agree_digits)
-                 ? "not compared: solver exact has no ridge penalty"
-                 : "significant digits shared with solver exact's "
-                   "coefficients (the worst term)");
+    srow(s, r, "agreement with exact", rm->agree_digits, WFMT_SIG,
+         "significant digits shared with solver exact's coefficients for "
+         "the same problem (the worst term)");
 }
 
 /* The cross-validation rows: the folds and the three pooled measures. */
@@ -1116,6 +1117,129 @@ static rf_status write_validation(writer *w, const design *d,
     return writer_status(w, err);
 }
 
+/* Line k (1..THRESH_LINES) of the Diagnostics sheet's threshold block,
+ * at sheet row k, columns from ct. */
+#define THRESH_LINES 5
+static void thresh_line(writer_sheet *s, uint32_t k, uint16_t ct,
+                        const diagnose_result *g, int lg, int penalised)
+{
+    static const char *const flag[3] = { "high leverage", "outlier",
+                                         "influential" };
+    char note[300];
+    if (k >= 1 && k <= 3) {
+        const double cut[3] = { g->leverage_cut, g->student_cut,
+                                g->cooks_cut };
+        writer_text(s, k, ct, flag[k - 1], WFMT_NONE);
+        writer_number(s, k, (uint16_t)(ct + 1), cut[k - 1], WFMT_SIG, NULL);
+        writer_number(s, k, (uint16_t)(ct + 2), (double)g->n_flagged[k - 1],
+                      WFMT_INTEGER, NULL);
+        if (k == 1)
+            snprintf(note, sizeof note, "leverage above 2p/n = 2 x %zu / %zu",
+                     g->p, g->n);
+        else if (k == 2)
+            snprintf(note, sizeof note, "%s", lg
+                     ? "|standardized Pearson residual| above 3"
+                     : "|externally studentized residual| above 3");
+        else
+            snprintf(note, sizeof note, "Cook's distance above 4/n = 4 / %zu",
+                     g->n);
+        writer_text(s, k, (uint16_t)(ct + 3), note, WFMT_NONE);
+    } else if (k == THRESH_LINES) {
+        writer_text(s, k, ct, penalised
+                    ? "A flag asks for a second look at the row (a typing "
+                      "error, an unusual case), not for its removal. With a "
+                      "penalty, leverage is that of the unpenalised least "
+                      "squares design."
+                    : "A flag asks for a second look at the row (a typing "
+                      "error, an unusual case), not for its removal.",
+                    WFMT_NONE);
+    }
+}
+
+/* The Diagnostics sheet: one row per fitted row with its leverage,
+ * studentized residual, Cook's distance (logistic: also the Pearson and
+ * deviance residuals) and the flags it raises; the thresholds and counts
+ * beside. */
+static rf_status write_diagnostics(writer *w, const job *j, const table *data,
+                                   const table *score, const design *d,
+                                   const report_model *rm, rf_error *err)
+{
+    const diagnose_result *g = rm->diag;
+    writer_sheet *s = writer_add_sheet(w, "Diagnostics", err);
+    if (s == NULL)
+        return err->status;
+    int lg = rm->logistic != NULL, has_id = j->id.name != NULL;
+    const char *names[10];
+    uint16_t nc = 0;
+    names[nc++] = "source";
+    names[nc++] = "row";
+    if (has_id)
+        names[nc++] = j->id.name;
+    uint16_t c_lev = nc;
+    names[nc++] = "leverage";
+    names[nc++] = "studentized residual";
+    names[nc++] = "cooks distance";
+    if (lg) {
+        names[nc++] = "pearson residual";
+        names[nc++] = "deviance residual";
+    }
+    uint16_t c_flag = nc;
+    names[nc++] = "flag";
+    writer_column(s, 0, 8, WFMT_NONE);
+    writer_column(s, 1, 8, WFMT_INTEGER);
+    if (has_id)
+        writer_column(s, 2, 12, WFMT_NONE);
+    for (uint16_t c = c_lev; c < c_flag; c++)
+        writer_column(s, c, 14, WFMT_FIXED4);
+    writer_column(s, c_flag, 36, WFMT_NONE);
+    writer_column(s, (uint16_t)(c_flag + 2), 26, WFMT_NONE);
+    writer_column(s, (uint16_t)(c_flag + 3), 14, WFMT_SIG);
+    writer_column(s, (uint16_t)(c_flag + 4), 10, WFMT_INTEGER);
+    writer_column(s, (uint16_t)(c_flag + 5), 60, WFMT_NONE);
+    writer_header(s, names, nc, (uint32_t)d->n_fit);
+
+    /* the thresholds, beside the rows (common practice; see
+     * docs/methods.md), written row by row with the rows they sit beside:
+     * the sheet is streamed in row order */
+    uint16_t ct = (uint16_t)(c_flag + 2);
+    writer_text(s, 0, ct, "check", WFMT_BOLD);
+    writer_text(s, 0, (uint16_t)(ct + 1), "threshold", WFMT_BOLD);
+    writer_text(s, 0, (uint16_t)(ct + 2), "rows flagged", WFMT_BOLD);
+    writer_text(s, 0, (uint16_t)(ct + 3), "rule", WFMT_BOLD);
+    uint32_t r = 1;
+    char text[80];
+    for (size_t o = 0; o < d->n_rows; o++) {
+        const design_row *row = &d->rows[o];
+        if (row->status != ROW_FITTED)
+            continue;
+        const table *t = row->source == SOURCE_DATA ? data : score;
+        size_t i = row->index;
+        writer_text(s, r, 0, "data", WFMT_NONE);
+        writer_number(s, r, 1, table_row_source(t, row->row), WFMT_INTEGER,
+                      NULL);
+        if (has_id && d->id_col_data >= 0)
+            write_cell(s, r, 2, t, row->row, (size_t)d->id_col_data);
+        uint16_t c = c_lev;
+        writer_number(s, r, c++, g->leverage[i], WFMT_FIXED4, NULL);
+        writer_number(s, r, c++, g->student[i], WFMT_FIXED4, NULL);
+        writer_number(s, r, c++, g->cooks[i], WFMT_FIXED4, NULL);
+        if (lg) {
+            writer_number(s, r, c++, g->pearson[i], WFMT_FIXED4, NULL);
+            writer_number(s, r, c++, g->deviance[i], WFMT_FIXED4, NULL);
+        }
+        diagnose_flag_text(g->flag[i], text, sizeof text);
+        if (text[0])
+            writer_text(s, r, c_flag, text, WFMT_NONE);
+        if (r <= THRESH_LINES)
+            thresh_line(s, r, ct, g, lg, rm->ridge > 0 && !lg);
+        r++;
+    }
+    for (; r <= THRESH_LINES; r++)
+        thresh_line(s, r, ct, g, lg, rm->ridge > 0 && !lg);
+    (void)score;
+    return writer_status(w, err);
+}
+
 static rf_status write_job(writer *w, const job *j,
                            const report_facts *facts,
                            const rf_warnings *warn, const char *caution,
@@ -1200,6 +1324,9 @@ rf_status report_write(writer *w, const job *j, const table *data,
     if ((st = write_summary(w, j, data, score, d, rm, err)))
         return st;
     if (rm->cv && (st = write_validation(w, d, rm, err)))
+        return st;
+    if (rm->diag
+        && (st = write_diagnostics(w, j, data, score, d, rm, err)))
         return st;
     return write_job(w, j, facts, warn,
                      rm->logistic ? CAUTION_PEOPLE : CAUTION_PRICE, err);

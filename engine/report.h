@@ -16,6 +16,7 @@
 #include "design.h"
 #include "job.h"
 #include "classify.h"
+#include "diagnose.h"
 #include "gradient.h"
 #include "linear.h"
 #include "logistic.h"
@@ -64,6 +65,8 @@ typedef struct report_model {
     const report_cv *cv;             /* folds > 0, else NULL */
     double ridge;                    /* the penalty fitted (the job's, or
                                         the one ridge auto chose), or 0 */
+    const diagnose_result *diag;     /* per fitted row */
+    const double *vif;               /* linear: per term, else NULL */
 } report_model;
 
 /* Writes every sheet of the job into w. Warnings found while writing (a

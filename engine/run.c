@@ -17,11 +17,13 @@
 #include "../io/writer.h"
 #include "classify.h"
 #include "design.h"
+#include "diagnose.h"
 #include "gradient.h"
 #include "job.h"
 #include "linear.h"
 #include "logistic.h"
 #include "report.h"
+#include "ridge.h"
 #include "validate.h"
 
 #ifndef ROWFIT_VERSION
@@ -167,6 +169,9 @@ typedef struct fit {
     double *cv_pred;
     validate_result *cv_res;
     validate_calibration *cv_cal;
+    double *path_grid, *path_mean, *path_se;   /* ridge auto */
+    diagnose_result *diag;
+    double *vif;
 } fit;
 
 static void fit_free(fit *f)
@@ -179,6 +184,11 @@ static void fit_free(fit *f)
     free(f->cv_pred);
     validate_free(f->cv_res);
     validate_calibration_free(f->cv_cal);
+    free(f->path_grid);
+    free(f->path_mean);
+    free(f->path_se);
+    diagnose_free(f->diag);
+    free(f->vif);
 }
 
 /* Folds for the job: `folds K`, or by default 5 when there are at least
@@ -193,50 +203,198 @@ static size_t job_folds(const job *j, size_t n)
     return n >= CV_DEFAULT_MIN_ROWS ? CV_DEFAULT_FOLDS : 0;
 }
 
-/* Logistic folds: each fold's training rows refitted by logistic_fit (the
- * standardizing of the ridge penalty and the rank decisions are then the
- * training rows' own), its held-out rows given their probability. A fold
- * that separates without a penalty, or does not converge, gives its rows
- * no probability (NaN) and counts as failed. */
-static rf_status cv_logistic(const job *j, const design *d, fit *f,
-                             rf_error *err)
+/* A training set and the rows to estimate from it (indices of fitted
+ * rows). */
+typedef struct fold_set {
+    const size_t *train, *test;
+    size_t nt, ntest;
+} fold_set;
+
+/* Fits the training rows at each of G penalties and fills pred (G x
+ * ntest, penalty-major) with the test rows' estimates or probabilities,
+ * NaN where a fit failed (a logistic fold that separates without a
+ * penalty, or does not converge). Every scale a fit uses (the centring and
+ * standardizing of the penalty, the rank decisions of a logistic fit) is
+ * its training rows' own. *failed counts the penalties that failed. */
+static rf_status fold_fit(const job *j, const design *d, const fit *f,
+                          const fold_set *fs, const double *lambda, size_t G,
+                          double *pred, size_t *failed, rf_error *err)
 {
-    size_t n = d->n_fit, p = d->p, k = f->cv.k;
-    long double *Xt = malloc((n ? n : 1) * p * sizeof *Xt);
-    double *yt = malloc((n ? n : 1) * sizeof *yt);
+    size_t p = d->p;
     rf_status st = RF_OK;
+    double *beta = malloc(p * sizeof *beta);
+    long double *Xt = NULL;
+    double *yt = NULL;
+    *failed = 0;
+    if (beta == NULL)
+        return error_nomem(err, NULL);
+    if (j->model != MODEL_LOGISTIC) {
+        ridge_path *path = NULL;
+        rf_error e2;
+        memset(&e2, 0, sizeof e2);
+        st = ridge_path_create(d->X, d->y, d->n_fit, p, d->intercept,
+                               f->lin->drop, fs->train, fs->nt, &path, &e2);
+        for (size_t g = 0; g < G; g++) {
+            int ok = st == RF_OK
+                     && ridge_path_solve(path, lambda[g], beta, &e2) == RF_OK;
+            *failed += !ok;
+            for (size_t t = 0; t < fs->ntest; t++) {
+                const long double *x = d->X + fs->test[t] * p;
+                long double e = 0;
+                for (size_t c = 0; ok && c < p; c++)
+                    if (f->lin->drop[c] == LINEAR_KEPT)
+                        e += x[c] * beta[c];
+                pred[g * fs->ntest + t] = ok ? (double)e : NAN;
+            }
+        }
+        ridge_path_free(path);
+        if (st == RF_ENOMEM || st == RF_ESYSTEM)
+            *err = e2;
+        else
+            st = RF_OK;   /* a fold that cannot be fitted is a result */
+        free(beta);
+        return st;
+    }
+    Xt = malloc((fs->nt ? fs->nt : 1) * p * sizeof *Xt);
+    yt = malloc((fs->nt ? fs->nt : 1) * sizeof *yt);
     if (Xt == NULL || yt == NULL) {
         st = error_nomem(err, NULL);
         goto out;
     }
-    for (size_t fo = 0; fo < k; fo++) {
-        size_t nt = 0;
-        for (size_t i = 0; i < n; i++)
-            if (f->fold[i] != fo) {
-                memcpy(Xt + nt * p, d->X + i * p, p * sizeof *Xt);
-                yt[nt++] = f->y[i];
-            }
+    for (size_t t = 0; t < fs->nt; t++) {
+        memcpy(Xt + t * p, d->X + fs->train[t] * p, p * sizeof *Xt);
+        yt[t] = f->y[fs->train[t]];
+    }
+    for (size_t g = 0; g < G; g++) {
         logistic_model *m = NULL;
         rf_error e2;
         memset(&e2, 0, sizeof e2);
-        st = logistic_fit(Xt, yt, nt, p, d->intercept, j->level, j->ridge,
-                          &m, &e2);
+        st = logistic_fit(Xt, yt, fs->nt, p, d->intercept, j->level,
+                          lambda[g], &m, &e2);
         if (st == RF_ENOMEM || st == RF_ESYSTEM) {
             *err = e2;
             goto out;
         }
         int ok = st == RF_OK && m->converged
-                 && (m->separation == SEPARATION_NONE || j->ridge > 0);
+                 && (m->separation == SEPARATION_NONE || lambda[g] > 0);
         st = RF_OK;
-        for (size_t i = 0; i < n; i++)
-            if (f->fold[i] == fo)
-                f->cv_pred[i] = ok ? logistic_predict(m, d->X + i * p) : NAN;
-        f->cv.failed += !ok;
+        *failed += !ok;
+        for (size_t t = 0; t < fs->ntest; t++)
+            pred[g * fs->ntest + t] =
+                ok ? logistic_predict(m, d->X + fs->test[t] * p) : NAN;
         logistic_free(m);
     }
 out:
+    free(beta);
     free(Xt);
     free(yt);
+    return st;
+}
+
+/* The error of one fold's estimates, for choosing a penalty: the mean
+ * squared error (linear) or the mean log loss, probabilities clipped as
+ * classify.h clips them (yes/no). NaN when any estimate is missing. */
+static double fold_error(const double *y, const size_t *test, size_t ntest,
+                         const double *pred, int classify)
+{
+    long double s = 0;
+    for (size_t t = 0; t < ntest; t++) {
+        double q = pred[t], yi = y[test[t]];
+        if (!isfinite(q))
+            return NAN;
+        if (classify) {
+            double own = yi ? q : 1 - q;
+            if (own < CLASSIFY_CLIP)
+                own = CLASSIFY_CLIP;
+            s -= logl(own);
+        } else {
+            s += (long double)(yi - q) * (yi - q);
+        }
+    }
+    return ntest ? (double)(s / ntest) : NAN;
+}
+
+/* The training and test rows of fold fo among the rows `rows` (nr of
+ * them; fold[] parallel to rows) into train and test (caller's, nr each). */
+static void fold_split(const size_t *rows, const size_t *fold, size_t nr,
+                       size_t fo, size_t *train, size_t *test, fold_set *fs)
+{
+    fs->nt = fs->ntest = 0;
+    for (size_t i = 0; i < nr; i++) {
+        if (fold[i] == fo)
+            test[fs->ntest++] = rows[i];
+        else
+            train[fs->nt++] = rows[i];
+    }
+    fs->train = train;
+    fs->test = test;
+}
+
+/* ridge auto: the grid position chosen on the fitted rows `rows` (nr of
+ * them) by k-fold cross-validation within them, folds from seed: each
+ * penalty of ridge_grid(nr) at the same penalty per row in every training
+ * fold, the error of each fold, the one-standard-error choice
+ * (validate_choose). mean and se (RIDGE_GRID each) get the path, or may be
+ * NULL. Only the rows given are ever read, so the choice made for an
+ * outer fold never sees that fold. */
+static rf_status choose_ridge(const job *j, const design *d, const fit *f,
+                              const size_t *rows, size_t nr, size_t k,
+                              unsigned long seed, double *mean, double *se,
+                              size_t *best, size_t *chosen, rf_error *err)
+{
+    int classify = j->model == MODEL_LOGISTIC;
+    const double *y = classify ? f->y : NULL;
+    double pen[RIDGE_GRID], lam[RIDGE_GRID], gm[RIDGE_GRID], gs[RIDGE_GRID];
+    size_t G = RIDGE_GRID, failed;
+    size_t *fold = malloc(nr * sizeof *fold), *train = malloc(nr * sizeof *train);
+    size_t *test = malloc(nr * sizeof *test);
+    double *cls = classify ? malloc(nr * sizeof *cls) : NULL;
+    double *yy = classify ? NULL : malloc(d->n_fit * sizeof *yy);
+    double *pred = malloc(G * nr * sizeof *pred);
+    double *errs = malloc(G * k * sizeof *errs);
+    rf_status st = RF_OK;
+    if (!fold || !train || !test || (classify ? !cls : !yy) || !pred
+        || !errs) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    if (classify)
+        for (size_t i = 0; i < nr; i++)
+            cls[i] = f->y[rows[i]];
+    else
+        for (size_t i = 0; i < d->n_fit; i++)
+            yy[i] = (double)d->y[i];
+    if ((st = validate_folds(nr, k, seed, cls, fold, err)))
+        goto out;
+    ridge_grid(nr, pen);
+    for (size_t fo = 0; fo < k; fo++) {
+        fold_set fs;
+        fold_split(rows, fold, nr, fo, train, test, &fs);
+        for (size_t g = 0; g < G; g++)
+            lam[g] = pen[g] * (double)fs.nt / (double)nr;
+        if ((st = fold_fit(j, d, f, &fs, lam, G, pred, &failed, err)))
+            goto out;
+        for (size_t g = 0; g < G; g++)
+            errs[g * k + fo] = fold_error(classify ? y : yy, fs.test,
+                                          fs.ntest, pred + g * fs.ntest,
+                                          classify);
+    }
+    *chosen = validate_choose(errs, G, k, mean ? mean : gm, se ? se : gs,
+                              best);
+    if (*chosen == G) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file, j->ridge_line);
+        st = error_set(err, RF_EINPUT, where, "ridge auto: no penalty of "
+                       "the grid could be fitted in every fold");
+    }
+out:
+    free(fold);
+    free(train);
+    free(test);
+    free(cls);
+    free(yy);
+    free(pred);
+    free(errs);
     return st;
 }
 
@@ -282,60 +440,158 @@ out:
     return st;
 }
 
-/* k-fold cross-validation of the fitted model (before solver gradient
- * replaces the exact coefficients: the folds are fitted by the exact
- * solver of the same problem). */
+/* Folds for cross-validation and for ridge auto's choice: `folds K`, the
+ * default, or for ridge auto on fewer rows than the default needs, 5. */
+static rf_status cv_folds(const job *j, size_t n, size_t *k, rf_error *err)
+{
+    char where[ERROR_WHERE_MAX];
+    *k = job_folds(j, n);
+    if (j->ridge_auto && *k == 0) {
+        snprintf(where, sizeof where, "%s:%d", j->file, j->ridge_line);
+        if (j->folds == 0)
+            return error_set(err, RF_EINPUT, where, "ridge auto chooses the "
+                             "penalty by cross-validation, which `folds 0` "
+                             "turns off: remove that line or give a penalty");
+        *k = CV_DEFAULT_FOLDS;
+    }
+    if (*k > n) {
+        snprintf(where, sizeof where, "%s:%d", j->file,
+                 j->folds_line ? j->folds_line : j->ridge_line);
+        return error_set(err, RF_EINPUT, where, "folds %zu needs at least "
+                         "%zu fitted rows; there are %zu", *k, *k, n);
+    }
+    return RF_OK;
+}
+
+/* ridge auto over every fitted row: the penalty the fit uses, with the
+ * whole path for the Validation sheet. */
+static rf_status ridge_auto(const job *j, const design *d, fit *f,
+                            rf_error *err)
+{
+    size_t n = d->n_fit, k;
+    rf_status st = cv_folds(j, n, &k, err);
+    if (st)
+        return st;
+    size_t *rows = malloc(n * sizeof *rows);
+    f->path_grid = malloc(RIDGE_GRID * sizeof *f->path_grid);
+    f->path_mean = malloc(RIDGE_GRID * sizeof *f->path_mean);
+    f->path_se = malloc(RIDGE_GRID * sizeof *f->path_se);
+    if (!rows || !f->path_grid || !f->path_mean || !f->path_se) {
+        free(rows);
+        return error_nomem(err, NULL);
+    }
+    for (size_t i = 0; i < n; i++)
+        rows[i] = i;
+    st = choose_ridge(j, d, f, rows, n, k, j->seed, f->path_mean,
+                      f->path_se, &f->cv.best, &f->cv.chosen, err);
+    free(rows);
+    if (st)
+        return at_model(j, st, err);
+    ridge_grid(n, f->path_grid);
+    f->cv.G = RIDGE_GRID;
+    f->cv.grid = f->path_grid;
+    f->cv.mean = f->path_mean;
+    f->cv.se = f->path_se;
+    f->rm.ridge = f->path_grid[f->cv.chosen];
+    return RF_OK;
+}
+
+/* k-fold cross-validation of the fitted model, by the exact solver of the
+ * same problem (solver gradient's coefficients come later). Linear without
+ * a penalty: one QR, updated per fold (linear_cv). Otherwise each fold's
+ * training rows are fitted at the same penalty per row; with ridge auto
+ * the penalty itself is chosen again inside each training fold (nested),
+ * so the held-out rows never inform it. */
 static rf_status cross_validate(const job *j, const design *d, fit *f,
                                 rf_warnings *warn, rf_error *err)
 {
-    size_t n = d->n_fit, k = job_folds(j, n);
-    if (k == 0)
-        return RF_OK;
-    if (k > n) {
-        char where[ERROR_WHERE_MAX];
-        snprintf(where, sizeof where, "%s:%d", j->file, j->folds_line);
-        return error_set(err, RF_EINPUT, where, "folds %zu needs at least "
-                         "%zu fitted rows; there are %zu", k, k, n);
-    }
+    size_t n = d->n_fit, k;
+    rf_status st = cv_folds(j, n, &k, err);
+    if (st || k == 0)
+        return st;
     int classify = j->model == MODEL_LOGISTIC;
     f->cv.k = k;
     f->cv.seed = j->seed;
     f->cv.stratified = classify;
     f->fold = malloc(n * sizeof *f->fold);
     f->cv_pred = malloc(n * sizeof *f->cv_pred);
-    if (f->fold == NULL || f->cv_pred == NULL)
-        return error_nomem(err, NULL);
-    rf_status st = validate_folds(n, k, j->seed, classify ? f->y : NULL,
-                                  f->fold, err);
-    if (st)
-        return at_model(j, st, err);
-    if (classify) {
-        f->cv.method = "each fold's training rows refitted by Newton's "
-                       "method (IRLS)";
-        st = cv_logistic(j, d, f, err);
-    } else {
+    size_t *all = malloc(n * sizeof *all), *train = malloc(n * sizeof *train);
+    size_t *test = malloc(n * sizeof *test);
+    if (!f->fold || !f->cv_pred || !all || !train || !test) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    if ((st = validate_folds(n, k, j->seed, classify ? f->y : NULL, f->fold,
+                             err))) {
+        st = at_model(j, st, err);
+        goto out;
+    }
+    if (!classify && f->rm.ridge == 0 && !j->ridge_auto) {
         f->cv.method = "each fold's estimates updated from the full fit's "
                        "QR factor (exact, the same as refitting)";
         st = linear_cv(f->lin, d->X, d->y, f->fold, k, f->cv_pred,
                        &f->cv.refits, err);
         st = at_model(j, st, err);
+        goto measure;
     }
+    f->cv.method = j->ridge_auto
+        ? "each fold's penalty chosen again by cross-validation within its "
+          "training rows, then its training rows refitted at it"
+        : classify ? "each fold's training rows refitted by Newton's method "
+                     "(IRLS)"
+                   : "each fold's training rows refitted (ridge, exact)";
+    for (size_t i = 0; i < n; i++)
+        all[i] = i;
+    for (size_t fo = 0; fo < k; fo++) {
+        fold_set fs;
+        fold_split(all, f->fold, n, fo, train, test, &fs);
+        /* the same penalty per row as the full fit */
+        double lam = f->rm.ridge * (double)fs.nt / (double)n;
+        if (j->ridge_auto) {
+            size_t best, chosen;
+            double pen[RIDGE_GRID];
+            if ((st = choose_ridge(j, d, f, fs.train, fs.nt, k,
+                                   j->seed + fo + 1, NULL, NULL, &best,
+                                   &chosen, err)))
+                goto out;
+            ridge_grid(fs.nt, pen);
+            lam = pen[chosen];
+        }
+        double *pred = malloc((fs.ntest ? fs.ntest : 1) * sizeof *pred);
+        size_t failed = 0;
+        if (pred == NULL) {
+            st = error_nomem(err, NULL);
+            goto out;
+        }
+        st = fold_fit(j, d, f, &fs, &lam, 1, pred, &failed, err);
+        for (size_t t = 0; st == RF_OK && t < fs.ntest; t++)
+            f->cv_pred[fs.test[t]] = pred[t];
+        free(pred);
+        if (st)
+            goto out;
+        f->cv.failed += failed;
+    }
+measure:
     if (st)
-        return st;
+        goto out;
     if (f->cv.failed
         && (st = error_warn(warn, NULL, "cross-validation: %zu of %zu "
                             "folds could not be fitted (the classes are "
                             "separated within their training rows); their "
-                            "rows have no cv probability. A `ridge` "
-                            "penalty helps", f->cv.failed, k)))
-        return st;
+                            "rows have no cv value. A `ridge` penalty helps",
+                            f->cv.failed, k)))
+        goto out;
     if ((st = cv_measure(j, d, f, classify, err)))
-        return st;
+        goto out;
     f->cv.pred = f->cv_pred;
     f->cv.res = f->cv_res;
     f->cv.cal = f->cv_cal;
     f->rm.cv = &f->cv;
-    return RF_OK;
+out:
+    free(all);
+    free(train);
+    free(test);
+    return st;
 }
 
 /* Significant digits two coefficient vectors share, the worst kept term:
@@ -383,7 +639,7 @@ static rf_status fit_gradient(const job *j, const design *d, fit *f,
         yk[i] = (double)d->y[i];
     }
     int icpt = d->intercept && drop[0] == LINEAR_KEPT;
-    st = gradient_fit(Xk, yk, n, pk, icpt, logistic, j->ridge, j->rate,
+    st = gradient_fit(Xk, yk, n, pk, icpt, logistic, f->rm.ridge, j->rate,
                       j->epochs, &f->grad, err);
     if (st) {
         st = at_model(j, st, err);
@@ -418,9 +674,7 @@ static rf_status fit_gradient(const job *j, const design *d, fit *f,
     } else {
         linear_set_beta(f->lin, d->X, d->y, beta);
     }
-    /* the exact linear fit has no penalty: nothing to compare with */
-    f->rm.agree_digits = !logistic && j->ridge > 0
-        ? NAN : agree_digits(beta, exact, drop, p);
+    f->rm.agree_digits = agree_digits(beta, exact, drop, p);
     f->rm.gradient = g;
 out:
     free(Xk);
@@ -442,14 +696,17 @@ static rf_status fit_logistic(const job *j, const design *d, fit *f,
         return error_nomem(err, NULL);
     for (size_t i = 0; i < n; i++)
         f->y[i] = (double)d->y[i];
-    rf_status st = logistic_fit(d->X, f->y, n, d->p, d->intercept, j->level,
-                                j->ridge, &f->logit, err);
+    rf_status st;
+    if (j->ridge_auto && (st = ridge_auto(j, d, f, err)))
+        return st;
+    st = logistic_fit(d->X, f->y, n, d->p, d->intercept, j->level,
+                      f->rm.ridge, &f->logit, err);
     if (st)
         return at_model(j, st, err);
     const logistic_model *m = f->logit;
     char where[ERROR_WHERE_MAX];
     snprintf(where, sizeof where, "%s:%d", j->file, j->model_line);
-    if (m->separation != SEPARATION_NONE && j->ridge == 0) {
+    if (m->separation != SEPARATION_NONE && f->rm.ridge == 0) {
         const char *term = m->separating_term >= 0
             ? d->term[m->separating_term] : "the inputs";
         return error_set(err, RF_EINPUT, where,
@@ -484,6 +741,22 @@ static rf_status fit_logistic(const job *j, const design *d, fit *f,
     return RF_OK;
 }
 
+/* The penalised linear fit, exact: its coefficients replace the least
+ * squares ones, which decided the rank. */
+static rf_status fit_ridge(const job *j, const design *d, fit *f,
+                           rf_error *err)
+{
+    double *beta = malloc(d->p * sizeof *beta);
+    if (beta == NULL)
+        return error_nomem(err, NULL);
+    rf_status st = ridge_fit(d->X, d->y, d->n_fit, d->p, d->intercept,
+                             f->lin->drop, f->rm.ridge, beta, err);
+    if (st == RF_OK)
+        linear_set_beta(f->lin, d->X, d->y, beta);
+    free(beta);
+    return at_model(j, st, err);
+}
+
 static rf_status fit_model(const job *j, const design *d, fit *f,
                            rf_warnings *warn, rf_error *err)
 {
@@ -508,11 +781,31 @@ static rf_status fit_model(const job *j, const design *d, fit *f,
                                 "inputs or fewer polynomial terms helps",
                                 m->cond, linear_accurate_digits(m))))
             return st;
+        if (j->ridge_auto && (st = ridge_auto(j, d, f, err)))
+            return st;
+        /* cross-validation first: without a penalty it updates the least
+         * squares factor, whose residuals a penalty would replace */
         if ((st = cross_validate(j, d, f, warn, err)))
+            return st;
+        if (f->rm.ridge > 0 && (st = fit_ridge(j, d, f, err)))
             return st;
         if (j->solver == SOLVER_GRADIENT
             && (st = fit_gradient(j, d, f, m->drop, err)))
             return st;
+    }
+    /* rows and terms that deserve a second look */
+    st = f->lin ? diagnose_linear(f->lin, d->X, &f->diag, err)
+                : diagnose_logistic(f->logit, d->X, f->y, &f->diag, err);
+    if (st)
+        return at_model(j, st, err);
+    f->rm.diag = f->diag;
+    if (f->lin) {
+        if ((f->vif = malloc(d->p * sizeof *f->vif)) == NULL)
+            return error_nomem(err, NULL);
+        if ((st = diagnose_vif(d->X, d->n_fit, d->p, d->intercept,
+                               f->lin->drop, f->vif, err)))
+            return at_model(j, st, err);
+        f->rm.vif = f->vif;
     }
     const linear_drop *drop = f->lin ? f->lin->drop : f->logit->drop;
     for (size_t k = 0; k < d->p; k++)
