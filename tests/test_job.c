@@ -796,13 +796,6 @@ static void test_job_rejects_features_not_available_yet(void **state)
         {"network with its options", "data s.csv\ntarget p\ninputs a\n"
          "model network\nhidden 16, 8\nrestarts 3\nsolver adam\nrate 0.01\n"
          "epochs 200\n", 4, "model network is not available yet"},
-        {"ridge with exact linear", BASE "ridge 0.5\n", 5,
-         "ridge with model linear and solver exact (use solver gradient for "
-         "a penalised linear fit) is not available yet"},
-        {"ridge auto", BASE "ridge AUTO\n", 5,
-         "ridge auto is not available yet"},
-        {"ridge auto on logistic", "data s.csv\ntarget p\ninputs a\n"
-         "model logistic\nridge auto\n", 5, "ridge auto is not available yet"},
         {"report ratio-study", BASE "report ratio-study\n", 5,
          "report ratio-study is not available yet"},
         {"report selection-rates", BASE

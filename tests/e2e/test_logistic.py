@@ -59,7 +59,7 @@ WB = os.path.join(REPO, "workbooks")
 
 # Contract section 3 and docs/workbook.md ("Logistic model").
 EST_FIXED = ["source", "row"]          # then id, target, then:
-EST_LOGISTIC = ["probability", "predicted", "status"]
+EST_LOGISTIC = ["probability", "predicted", "cv probability", "status"]  # cv: folds default to 5 from 50 rows
 COEF_COLUMNS = ["term", "estimate", "std error", "z", "p value", "low", "high",
                 "odds ratio", "odds low", "odds high", "note"]
 SUMMARY_COMMON = ["model", "target", "rows read", "rows fitted", "rows skipped",
@@ -392,7 +392,7 @@ def compare_with_statsmodels(res, X, y, terms, what):
 @test
 def test_demo_sheets_columns_and_labels():
     res = demo()
-    assert res.wbv.sheetnames == ["Estimates", "Coefficients", "Summary", "Job"], \
+    assert res.wbv.sheetnames == ["Estimates", "Coefficients", "Summary", "Validation", "Diagnostics", "Job"], \
         "sheets %r" % res.wbv.sheetnames   # contract section 3
     want = EST_FIXED + ["applicant_id", "completed"] + EST_LOGISTIC + APPL_INPUTS + APPL_CATS
     assert res.head("Estimates") == want, "Estimates header %r, want %r" % (res.head("Estimates"), want)
