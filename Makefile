@@ -44,7 +44,7 @@ else
 PROG := rowfit
 endif
 
-.PHONY: all deps test-deps demo check unit bench bench-readers fuzz fuzz-replay install clean
+.PHONY: all deps test-deps demo check unit bench bench-readers bench-cv fuzz fuzz-replay install clean
 all: $(PROG)
 
 $(PROG): $(BUILD)/engine/main.o $(LIB_OBJ)
@@ -158,7 +158,14 @@ $(BUILD)/bench_readers: tests/bench_readers.c $(LIB_OBJ)
 bench-readers: $(BUILD)/bench_readers
 	$(BUILD)/bench_readers --rows $${ROWS:-1000000}
 
-bench: all bench-readers
+$(BUILD)/bench_cv: tests/bench_cv.c $(LIB_OBJ)
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS)
+
+bench-cv: $(BUILD)/bench_cv
+	$(BUILD)/bench_cv --rows $${ROWS:-1000000}
+
+bench: all bench-readers bench-cv
 	@sh tests/bench.sh
 
 install: $(PROG)

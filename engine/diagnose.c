@@ -110,11 +110,6 @@ rf_status diagnose_linear(const linear_model *m, const long double *X,
     double s2 = rss / dfr;
     for (size_t i = 0; i < n; i++) {
         double h = linear_leverage(m, X + i * p);
-        if (isnan(h)) {
-            /* linear_leverage's only NaN: no memory for its scratch */
-            diagnose_free(d);
-            return error_nomem(err, NULL);
-        }
         double e = m->residual[i], one = 1 - h;
         double t = NAN, cd = NAN;
         if (one > DIAGNOSE_LEVERAGE_ONE && rss > 0) {

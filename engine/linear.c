@@ -719,13 +719,8 @@ static long double q_row(const linear_model *m, const long double *x,
 
 double linear_leverage(const linear_model *m, const long double *x)
 {
-    double w[64], *wp = m->rank <= 64 ? w : malloc(m->rank * sizeof *wp);
-    if (wp == NULL)
-        return NAN;
-    double h = (double)q_row(m, x, wp);
-    if (wp != w)
-        free(wp);
-    return h;
+    double w[LINEAR_RANK_MAX];   /* rank <= LINEAR_RANK_MAX: linear_fit */
+    return (double)q_row(m, x, w);
 }
 
 /* A fold whose training rows lose a direction of the full design (a

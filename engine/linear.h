@@ -107,7 +107,7 @@ int linear_accurate_digits(const linear_model *m);
 
 /* x'(X'X)^-1 x for a row x (p values, same columns as X), over the kept
  * terms: a fitted row's leverage (the diagonal of the hat matrix), from R,
- * never from the inverse. NaN on no memory (more than 64 kept terms). */
+ * never from the inverse. Allocates nothing. */
 double linear_leverage(const linear_model *m, const long double *x);
 
 /* Cross-validation of the fitted model m (X, y as given to linear_fit):

@@ -1165,6 +1165,31 @@ static void test_oom_run_logistic_job_reports_every_failure(void **state)
                          "model logistic\nsolver gradient\nridge 0.5\n");
     c.files = folder_count(f);
     assert_true(oom_sweep("run_job logistic gradient", run_run, &c) > 0);
+
+    /* cross-validation: logistic fold refits at a fixed penalty (ridge
+     * auto's nested choice, the same code for both models, is swept on
+     * the linear job below, where it costs 40 times fewer allocations),
+     * the ridge path, the Validation and Diagnostics sheets */
+    c.job = folder_write(f, "applied-cv.job",
+                         "job applied-cv\ndata applied.csv\ntarget done\n"
+                         "inputs score, years\nmodel logistic\n"
+                         "folds 3\nridge 0.5\n");
+    c.terms = 3;
+    c.files = folder_count(f);
+    assert_true(oom_sweep("run_job logistic cv", run_run, &c) > 0);
+    run_ctx l = { f, NULL, 0, 15, 1, 0, 3, NULL };
+    l.job = folder_write(f, "score-cv.job",
+                         "job score-cv\ndata applied.csv\ntarget score\n"
+                         "inputs years\ncategories region\nmodel linear\n"
+                         "folds 4\nridge auto\nid id\n");
+    l.files = folder_count(f);
+    assert_true(oom_sweep("run_job linear cv", run_run, &l) > 0);
+    l.job = folder_write(f, "score-loo.job",
+                         "job score-loo\ndata applied.csv\ntarget score\n"
+                         "inputs years\nmodel linear\nfolds 15\n");
+    l.terms = 2;
+    l.files = folder_count(f);
+    assert_true(oom_sweep("run_job linear leave-one-out", run_run, &l) > 0);
 }
 
 /* ------------------------------------------------------------ grid */
