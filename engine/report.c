@@ -489,11 +489,13 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
             }
             writer_number(s, r, L.c_low, low, WFMT_FIXED2, &b2);
             writer_number(s, r, L.c_high, high, WFMT_FIXED2, &b2);
-            /* solver gradient has no intervals, by design: no note */
+            /* solver gradient and a penalised fit have no intervals, by
+             * design: no note for those */
+            int no_interval = rm->gradient != NULL || rm->ridge > 0;
             snprintf(status, sizeof status, "%s%s",
                      row->status == ROW_FITTED ? "fitted" : "estimated",
                      blank ? " (estimate not finite, left blank)"
-                     : b2 && m->df_resid > 0 && rm->gradient == NULL
+                     : b2 && m->df_resid > 0 && !no_interval
                          ? " (interval not finite, left blank)" : "");
         }
         if (rm->cv && row->status == ROW_FITTED)
