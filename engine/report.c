@@ -720,8 +720,8 @@ static void summary_linear(writer_sheet *s, uint32_t *r, const design *d,
          : isfinite(m->bic)
              ? "-2 log likelihood + ln(rows fitted) (terms estimated + 1)"
              : "not defined: the residuals are all zero");
-    srow(s, r, "level", m->level, WFMT_PERCENT, gradient
-         ? "confidence level (solver gradient gives no intervals)"
+    srow(s, r, "level", m->level, WFMT_PERCENT, gradient || pen
+         ? "confidence level (this fit gives no intervals)"
          : "confidence level of every low / high");
     snprintf(note, sizeof note,
              "of the inputs after scaling each to unit length; a term is "
