@@ -315,7 +315,7 @@ static int predicted_formula(strbuf *b, const design *d, const est_layout *L,
 
 static rf_status write_estimates(writer *w, const job *j, const table *data,
                                  const table *score, const design *d,
-                                 const report_model *rm, rf_warnings *warn,
+                                 const fit_result *rm, rf_warnings *warn,
                                  rf_error *err)
 {
     const linear_model *m = rm->linear;
@@ -575,7 +575,7 @@ static void drop_note(const design *d, const linear_drop *drop,
 
 /* The note of a kept term: which level a category term is compared with,
  * or why it has no standard error. */
-static void kept_note(const design *d, const report_model *rm,
+static void kept_note(const design *d, const fit_result *rm,
                       size_t k, char *note, size_t n)
 {
     note[0] = '\0';
@@ -606,7 +606,7 @@ static void kept_note(const design *d, const report_model *rm,
 }
 
 static rf_status write_coefficients(writer *w, const design *d,
-                                    const report_model *rm, rf_error *err)
+                                    const fit_result *rm, rf_error *err)
 {
     writer_sheet *s = writer_add_sheet(w, "Coefficients", err);
     if (s == NULL)
@@ -694,7 +694,7 @@ static void trow(writer_sheet *s, uint32_t *r, const char *measure,
 
 /* The rows of a linear fit. */
 static void summary_linear(writer_sheet *s, uint32_t *r, const design *d,
-                           const report_model *rm)
+                           const fit_result *rm)
 {
     char note[300];
     const linear_model *m = rm->linear;
@@ -739,7 +739,7 @@ static void summary_linear(writer_sheet *s, uint32_t *r, const design *d,
 
 /* The rows of a logistic fit. */
 static void summary_logistic(writer_sheet *s, uint32_t *r,
-                             const design *d, const report_model *rm)
+                             const design *d, const fit_result *rm)
 {
     const logistic_model *m = rm->logistic;
     const classify_measures *c = rm->cm;
@@ -806,7 +806,7 @@ static void summary_logistic(writer_sheet *s, uint32_t *r,
 
 /* The rows of solver gradient. */
 static void summary_gradient(writer_sheet *s, uint32_t *r,
-                             const report_model *rm)
+                             const fit_result *rm)
 {
     const gradient_model *g = rm->gradient;
     char note[300];
@@ -831,9 +831,9 @@ static void summary_gradient(writer_sheet *s, uint32_t *r,
 }
 
 /* The cross-validation rows: the folds and the three pooled measures. */
-static void summary_cv(writer_sheet *s, uint32_t *r, const report_model *rm)
+static void summary_cv(writer_sheet *s, uint32_t *r, const fit_result *rm)
 {
-    const report_cv *cv = rm->cv;
+    const fit_cv *cv = rm->cv;
     const validate_result *v = cv->res;
     char note[300];
     snprintf(note, sizeof note, "k-fold cross-validation: folds drawn with "
@@ -889,7 +889,7 @@ static void confusion_block(writer_sheet *s, uint32_t *r, const design *d,
 
 static rf_status write_summary(writer *w, const job *j, const table *data,
                                const table *score, const design *d,
-                               const report_model *rm, rf_error *err)
+                               const fit_result *rm, rf_error *err)
 {
     writer_sheet *s = writer_add_sheet(w, "Summary", err);
     if (s == NULL)
@@ -979,9 +979,9 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
  * the folds were fitted; the ridge path; for a yes/no target the
  * calibration table and the out-of-fold confusion matrix. */
 static rf_status write_validation(writer *w, const design *d,
-                                  const report_model *rm, rf_error *err)
+                                  const fit_result *rm, rf_error *err)
 {
-    const report_cv *cv = rm->cv;
+    const fit_cv *cv = rm->cv;
     const validate_result *v = cv->res;
     writer_sheet *s = writer_add_sheet(w, "Validation", err);
     if (s == NULL)
@@ -1164,7 +1164,7 @@ static void thresh_line(writer_sheet *s, uint32_t k, uint16_t ct,
  * beside. */
 static rf_status write_diagnostics(writer *w, const job *j, const table *data,
                                    const table *score, const design *d,
-                                   const report_model *rm, rf_error *err)
+                                   const fit_result *rm, rf_error *err)
 {
     const diagnose_result *g = rm->diag;
     writer_sheet *s = writer_add_sheet(w, "Diagnostics", err);
@@ -1314,7 +1314,7 @@ static rf_status write_job(writer *w, const job *j,
 
 rf_status report_write(writer *w, const job *j, const table *data,
                        const table *score, const design *d,
-                       const report_model *rm, const report_facts *facts,
+                       const fit_result *rm, const report_facts *facts,
                        rf_warnings *warn, rf_error *err)
 {
     rf_status st;
