@@ -48,6 +48,7 @@ struct fit {
     double *path_grid, *path_mean, *path_se;   /* ridge auto */
     diagnose_result *diag;
     double *vif;
+    size_t *fold_id;
 };
 
 void fit_free(fit *f)
@@ -67,6 +68,7 @@ void fit_free(fit *f)
     free(f->path_se);
     diagnose_free(f->diag);
     free(f->vif);
+    free(f->fold_id);
     free(f);
 }
 
@@ -215,13 +217,16 @@ static void fold_split(const size_t *rows, const size_t *fold, size_t nr,
  * fold, the error of each fold, the one-standard-error choice
  * (validate_choose). mean and se (RIDGE_GRID each) get the path, or may be
  * NULL. Only the rows given are ever read, so the choice made for an
- * outer fold never sees that fold. */
+ * outer fold never sees that fold. k is capped at nr (an outer fold's
+ * training rows can be fewer than the folds asked for). */
 static rf_status choose_ridge(const job *j, const design *d, const fit *f,
                               const size_t *rows, size_t nr, size_t k,
                               unsigned long seed, double *mean, double *se,
                               size_t *best, size_t *chosen, rf_error *err)
 {
     int classify = j->model == MODEL_LOGISTIC;
+    if (k > nr)
+        k = nr;
     const double *y = classify ? f->y : NULL;
     double pen[RIDGE_GRID], lam[RIDGE_GRID], gm[RIDGE_GRID], gs[RIDGE_GRID];
     size_t G = RIDGE_GRID, failed;
@@ -291,13 +296,25 @@ static rf_status cv_measure(const job *j, const design *d, fit *f,
         st = error_nomem(err, NULL);
         goto out;
     }
+    /* the folds with a value, renumbered in order; fold_id keeps their
+     * own numbers for the Validation sheet */
     for (size_t c = 0; c < k; c++)
         map[c] = (size_t)-1;
+    for (size_t i = 0; i < n; i++)
+        if (isfinite(f->cv_pred[i]))
+            map[f->fold[i]] = 0;
+    if ((f->fold_id = malloc(k * sizeof *f->fold_id)) == NULL) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    for (size_t c = 0; c < k; c++)
+        if (map[c] == 0) {
+            f->fold_id[km] = c;
+            map[c] = km++;
+        }
     for (size_t i = 0; i < n; i++) {
         if (!isfinite(f->cv_pred[i]))
             continue;
-        if (map[f->fold[i]] == (size_t)-1)
-            map[f->fold[i]] = km++;
         fo[m] = map[f->fold[i]];
         yy[m] = (double)d->y[i];
         pp[m++] = f->cv_pred[i];
@@ -429,10 +446,16 @@ static rf_status cross_validate(const job *j, const design *d, fit *f,
         if (j->ridge_auto) {
             size_t best, chosen;
             double pen[RIDGE_GRID];
-            if ((st = choose_ridge(j, d, f, fs.train, fs.nt, k,
+            /* the nested choice within the training rows: at most
+             * CV_DEFAULT_FOLDS inner folds, so leave-one-out outside does
+             * not square its cost inside */
+            size_t inner = k < CV_DEFAULT_FOLDS ? k : CV_DEFAULT_FOLDS;
+            if ((st = choose_ridge(j, d, f, fs.train, fs.nt, inner,
                                    j->seed + fo + 1, NULL, NULL, &best,
-                                   &chosen, err)))
+                                   &chosen, err))) {
+                st = at_model(j, st, err);
                 goto out;
+            }
             ridge_grid(fs.nt, pen);
             lam = pen[chosen];
         }
@@ -456,13 +479,16 @@ measure:
     if (f->cv.failed
         && (st = error_warn(warn, NULL, "cross-validation: %zu of %zu "
                             "folds could not be fitted (the classes are "
-                            "separated within their training rows); their "
-                            "rows have no cv value. A `ridge` penalty helps",
+                            "separated within their training rows, or the "
+                            "fit did not converge); their rows have no cv "
+                            "value and are left out of the cv measures. A "
+                            "`ridge` penalty helps",
                             f->cv.failed, k)))
         goto out;
     if ((st = cv_measure(j, d, f, classify, err)))
         goto out;
     f->cv.pred = f->cv_pred;
+    f->cv.fold_id = f->fold_id;
     f->cv.res = f->cv_res;
     f->cv.cal = f->cv_cal;
     f->rm.cv = &f->cv;

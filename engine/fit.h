@@ -30,6 +30,8 @@ typedef struct fit_cv {
                                   when its fold could not be fitted */
     size_t refits;             /* linear: folds refitted, not updated */
     size_t failed;             /* folds whose fit failed (no estimates) */
+    const size_t *fold_id;     /* res->folds[c] is fold fold_id[c] (0-based)
+                                  of the k: failed folds are not measured */
     const char *method;        /* how the folds were fitted, for a note */
     const validate_result *res;        /* NULL: fewer than 2 folds measured */
     const validate_calibration *cal;   /* yes/no targets, else NULL */
@@ -48,8 +50,8 @@ typedef struct fit_result {
     const logistic_model *logistic;
     const gradient_model *gradient;  /* solver gradient, else NULL */
     double agree_digits;   /* gradient: significant digits its coefficients
-                              share with the exact solver's (NaN when not
-                              compared: a penalised linear fit) */
+                              share with the exact solver's for the same
+                              problem (penalty included) */
     const classify_measures *cm;     /* logistic: fitted rows' measures */
     const fit_cv *cv;             /* folds > 0, else NULL */
     double ridge;                    /* the penalty fitted (the job's, or

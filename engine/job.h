@@ -23,8 +23,10 @@ typedef enum job_solver { SOLVER_DEFAULT = 0, SOLVER_EXACT, SOLVER_GRADIENT,
                                 minutes per epoch (common practice) */
 #define JOB_HIDDEN_DEFAULT 8 /* units in the one hidden layer when `hidden`
                                 is not given (contract section 2) */
-#define JOB_FOLDS_MAX 1000   /* each fold is a refit; past 1000 the estimate
-                                stops changing and only the run time grows */
+#define JOB_FOLDS_MAX 1048576 /* one fold per row of a sheet: leave-one-out
+                                on any table (a linear fit without a penalty
+                                updates one QR; other fits refit each fold,
+                                which docs/job-file.md prices) */
 #define JOB_RESTARTS_MAX 100 /* each restart is a full network fit */
 #define JOB_HEADER_MAX 1048576 /* the last row a spreadsheet can have */
 #define JOB_FILE_MAX (1L << 20) /* a job is a few dozen lines; a bigger file

@@ -730,6 +730,10 @@ double linear_leverage(const linear_model *m, const long double *x)
  * instead. */
 #define CV_PIVOT_MIN 1e-6
 
+/* Leave-one-out: a leverage this close to 1 is 1 (a row that alone decides
+ * a term), as diagnose.h counts it. */
+#define CV_LEVERAGE_ONE 1e-10
+
 /* The fold refitted from its own training rows: the exact answer when the
  * update cannot be trusted. */
 static rf_status cv_refit(const linear_model *m, const long double *X,
@@ -739,8 +743,9 @@ static rf_status cv_refit(const linear_model *m, const long double *X,
     size_t n = m->n, p = m->p, nt = 0;
     for (size_t i = 0; i < n; i++)
         nt += fold[i] != f;
-    long double *Xt = malloc((nt ? nt : 1) * p * sizeof *Xt);
-    long double *yt = malloc((nt ? nt : 1) * sizeof *yt);
+    /* calloc: every entry is set below, but the compiler cannot see it */
+    long double *Xt = calloc((nt ? nt : 1) * p, sizeof *Xt);
+    long double *yt = calloc(nt ? nt : 1, sizeof *yt);
     linear_model *mt = NULL;
     rf_status st = RF_OK;
     if (Xt == NULL || yt == NULL) {
@@ -806,8 +811,13 @@ rf_status linear_cv(const linear_model *m, const long double *X,
         double e = m->residual[i];
         if (loo) {
             /* the PRESS residual e / (1 - h) (Allen, Technometrics 16
-             * (1974) 125); h = 1: the row alone decides a term */
-            pred[i] = h < 1 ? (double)(y[i] - e / (1 - h)) : NAN;
+             * (1974) 125); h = 1 up to rounding: the row alone decides a
+             * term, and the update would divide noise by noise, so that
+             * row is refitted (after this loop) */
+            if (1 - h > CV_LEVERAGE_ONE)
+                pred[i] = (double)(y[i] - e / (1 - h));
+            else
+                pred[i] = NAN;
             continue;
         }
         double *Pf = P + fold[i] * rr, *uf = u + fold[i] * r;
@@ -817,8 +827,14 @@ rf_status linear_cv(const linear_model *m, const long double *X,
                 Pf[a * r + b] += qi[a] * qi[b];
         }
     }
-    if (loo)
+    if (loo) {
+        for (size_t i = 0; i < n && st == RF_OK; i++)
+            if (isnan(pred[i])) {
+                (*refits)++;
+                st = cv_refit(m, X, y, fold, i, pred, err);
+            }
         goto out;
+    }
     /* Fold F: held-out residuals z = (I - U U')^-1 e_F, U the fold's rows
      * of Q; by the Woodbury identity z = e_F + U G^-1 U'e_F with
      * G = I - U'U = sum over the other folds' P (no cancellation: a sum of

@@ -853,6 +853,18 @@ static void summary_cv(writer_sheet *s, uint32_t *r, const fit_result *rm)
         "share of fitted rows whose out-of-fold label is their class",
         "AUC of the out-of-fold probabilities, every fitted row",
         "mean log loss of the out-of-fold probabilities" };
+    if (v && cv->failed) {
+        size_t used = 0;
+        for (size_t f = 0; f < v->k; f++)
+            used += v->folds[f].rows;
+        snprintf(note, sizeof note, "over the %zu fitted rows whose fold "
+                 "could be fitted (%zu of %zu folds failed: see the "
+                 "Validation sheet)", used, cv->failed, cv->k);
+        for (int k = 0; k < VALIDATE_MEASURES; k++)
+            srow(s, r, (rm->logistic ? cls : lin)[k], v->pooled[k],
+                 WFMT_SIG, note);
+        return;
+    }
     for (int k = 0; k < VALIDATE_MEASURES; k++)
         srow(s, r, (rm->logistic ? cls : lin)[k], v ? v->pooled[k] : NAN,
              WFMT_SIG,
@@ -903,7 +915,8 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
     uint32_t measures = SUMMARY_COMMON
         + (m ? SUMMARY_LINEAR : SUMMARY_LOGISTIC)
         + (rm->gradient ? SUMMARY_GRADIENT + (m ? 1 : 0) : 0)
-        + (rm->ridge > 0 ? 1 : 0) + (rm->cv ? SUMMARY_CV : 0);
+        + (rm->ridge > 0 || j->ridge_auto ? 1 : 0)
+        + (rm->cv ? SUMMARY_CV : 0);
     writer_header(s, names, 3, measures);
     uint32_t r = 1;
     char note[300];
@@ -931,14 +944,19 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
         summary_linear(s, &r, d, rm);
     else
         summary_logistic(s, &r, d, rm);
-    if (rm->ridge > 0)
-        srow(s, &r, "ridge", rm->ridge, WFMT_SIG, j->ridge_auto
-             ? "chosen by cross-validation (the one-standard-error rule; "
-               "the path is on the Validation sheet); the L2 penalty on the "
-               "coefficients of the standardized inputs, intercept not "
-               "penalised"
-             : "L2 penalty (ridge / 2) times the sum of squared coefficients "
-               "of the standardized inputs; the intercept is not penalised");
+    if (rm->ridge > 0 || j->ridge_auto) {
+        const char *what = m ? "the penalty ridge x (sum of squared "
+                               "coefficients of the standardized inputs) "
+                               "added to the residual sum of squares"
+                             : "the penalty (ridge / 2) x (sum of squared "
+                               "coefficients of the standardized inputs) "
+                               "taken from the log likelihood";
+        snprintf(note, sizeof note, "%s%s; the intercept is not penalised",
+                 j->ridge_auto ? "chosen by cross-validation (the "
+                                 "one-standard-error rule; the path is on "
+                                 "the Validation sheet): " : "", what);
+        srow(s, &r, "ridge", rm->ridge, WFMT_SIG, note);
+    }
     if (rm->cv)
         summary_cv(s, &r, rm);
     if (rm->gradient)
@@ -999,7 +1017,8 @@ static rf_status write_validation(writer *w, const design *d,
     char note[400];
     if (v) {
         for (size_t f = 0; f < v->k; f++, r++) {
-            writer_number(s, r, 0, (double)(f + 1), WFMT_INTEGER, NULL);
+            writer_number(s, r, 0, (double)(cv->fold_id[f] + 1),
+                          WFMT_INTEGER, NULL);
             writer_number(s, r, 1, (double)v->folds[f].rows, WFMT_INTEGER,
                           NULL);
             for (int k = 0; k < VALIDATE_MEASURES; k++)
@@ -1038,12 +1057,19 @@ static rf_status write_validation(writer *w, const design *d,
                     "fitted", WFMT_NONE);
     }
     r++;
-    snprintf(note, sizeof note, "%zu folds drawn with seed %lu%s; %s. "
-             "What a fit learns from its rows (the coefficients, the "
-             "standardizing of a penalty%s) is learned from each fold's "
-             "training rows only.", cv->k, cv->seed,
-             cv->stratified ? ", stratified by class" : "", cv->method,
-             cv->G ? ", the ridge choice" : "");
+    if (cv->k == d->n_fit)
+        snprintf(note, sizeof note, "leave-one-out: each fitted row its own "
+                 "fold; %s. What a fit learns from its rows (the "
+                 "coefficients, the standardizing of a penalty%s) is learned "
+                 "from each fold's training rows only.", cv->method,
+                 cv->G ? ", the ridge choice" : "");
+    else
+        snprintf(note, sizeof note, "%zu folds drawn with seed %lu%s; %s. "
+                 "What a fit learns from its rows (the coefficients, the "
+                 "standardizing of a penalty%s) is learned from each fold's "
+                 "training rows only.", cv->k, cv->seed,
+                 cv->stratified ? ", stratified by class" : "", cv->method,
+                 cv->G ? ", the ridge choice" : "");
     writer_text(s, r, 0, "method", WFMT_BOLD);
     writer_text(s, r++, 1, note, WFMT_NONE);
     if (cv->refits) {

@@ -1,7 +1,8 @@
 /*
  * report.h: lays out the result workbook of a fitted job: the Estimates,
- * Coefficients, Summary and Job sheets with the labels of docs/workbook.md,
- * for linear and logistic models fitted by either solver.
+ * Coefficients, Summary, Validation (with cross-validation), Diagnostics
+ * and Job sheets with the labels of docs/workbook.md, for linear and
+ * logistic models fitted by either solver, with or without a penalty.
  * Knows what the sheets mean; io/writer.c knows how cells reach the file.
  */
 #ifndef ROWFIT_REPORT_H

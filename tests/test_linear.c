@@ -863,6 +863,27 @@ static void test_linear_cv_leave_one_out_is_press(void **state)
     brute_cv(X, y, W_N, W_P, 0, fold, 3, slow);
     for (size_t i = 0; i < W_N; i++)
         assert_close(fast[i], slow[i], 1e-11, 1e-11);
+    /* a term only one row has: that row's leverage is 1 and its update
+     * would divide rounding noise by rounding noise; it is refitted, and
+     * equals the refit without the term */
+    {
+        long double Xc[CV_N * CV_P], yc[CV_N];
+        size_t fc[CV_N];
+        double fa[CV_N], sl[CV_N];
+        cv_design(Xc, yc);
+        for (size_t i = 0; i < CV_N; i++) {
+            Xc[i * CV_P + 3] = i == 7;
+            fc[i] = i;
+        }
+        linear_model *mc = fit_ok(Xc, yc, CV_N, CV_P, 1, 0.95);
+        assert_int_equal(linear_cv(mc, Xc, yc, fc, CV_N, fa, &refits, &e),
+                         RF_OK);
+        assert_int_equal(refits, 1);
+        brute_cv(Xc, yc, CV_N, CV_P, 1, fc, CV_N, sl);
+        for (size_t i = 0; i < CV_N; i++)
+            assert_close(fa[i], sl[i], 1e-10, 1e-10);
+        linear_free(mc);
+    }
     /* folds out of range */
     fold[0] = 3;
     assert_int_equal(linear_cv(m0, X, y, fold, 3, fast, &refits, &e),
