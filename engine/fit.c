@@ -214,8 +214,8 @@ static void fold_split(const size_t *rows, const size_t *fold, size_t nr,
 /* ridge auto: the grid position chosen on the fitted rows `rows` (nr of
  * them) by k-fold cross-validation within them, folds from seed: each
  * penalty of ridge_grid(nr) at the same penalty per row in every training
- * fold, the error of each fold, the one-standard-error choice
- * (validate_choose). mean and se (RIDGE_GRID each) get the path, or may be
+ * fold, the error of each fold, the choice of validate_choose. mean and
+ * se (RIDGE_GRID each) get the path, or may be
  * NULL. Only the rows given are ever read, so the choice made for an
  * outer fold never sees that fold. k is capped at nr (an outer fold's
  * training rows can be fewer than the folds asked for). */

@@ -953,8 +953,9 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
                                "taken from the log likelihood";
         snprintf(note, sizeof note, "%s%s; the intercept is not penalised",
                  j->ridge_auto ? "chosen by cross-validation (the "
-                                 "one-standard-error rule; the path is on "
-                                 "the Validation sheet): " : "", what);
+                                 "smallest penalty within 0.1% of the "
+                                 "smallest cv error; the path is on the "
+                                 "Validation sheet): " : "", what);
         srow(s, &r, "ridge", rm->ridge, WFMT_SIG, note);
     }
     if (rm->cv)
@@ -1095,8 +1096,9 @@ static rf_status write_validation(writer *w, const design *d,
         writer_text(s, r, 2, "standard error", WFMT_BOLD);
         writer_text(s, r++, 5, "the mean over the folds of each fold's "
                     "error, and its standard error (sd / sqrt(folds)); the "
-                    "chosen penalty is the largest within one standard error "
-                    "of the best", WFMT_NONE);
+                    "chosen penalty is the smallest whose error is within "
+                    "0.1% of the smallest: a penalty only where it lowers "
+                    "the cross-validated error", WFMT_NONE);
         for (size_t g = 0; g < cv->G; g++, r++) {
             writer_number(s, r, 0, cv->grid[g], WFMT_SIG, NULL);
             writer_number(s, r, 1, cv->mean[g], WFMT_SIG, NULL);

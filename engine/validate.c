@@ -1,6 +1,6 @@
 /*
  * validate.c: fold assignment, out-of-fold measures, calibration table and
- * the one-standard-error choice of a ridge penalty (validate.h). Fits
+ * the choice of a ridge penalty (validate.h). Fits
  * nothing: the models refit themselves; classification measures and the
  * risk-group rule come from classify.c so that cross-validated and in-sample
  * numbers are computed the same way.
@@ -363,10 +363,10 @@ size_t validate_choose(const double *err, size_t G, size_t k, double *mean,
     *best = b;
     if (b == G)
         return G;
-    /* One-standard-error rule (Hastie, Tibshirani & Friedman 2009, sec.
-     * 7.10): the largest penalty within one standard error of the best. */
-    double cap = mean[b] + se[b];
-    for (size_t g = G - 1; g > b; g--)
+    /* the smallest penalty within VALIDATE_CHOOSE_TOL of the best (see
+     * validate.h for why not the one-standard-error rule) */
+    double cap = mean[b] * (1 + VALIDATE_CHOOSE_TOL);
+    for (size_t g = 0; g < b; g++)
         if (isfinite(mean[g]) && isfinite(se[g]) && mean[g] <= cap)
             return g;
     return b;

@@ -848,30 +848,33 @@ static void test_validate_calibration_rejects_bad_input(void **state)
     assert_null(c);
 }
 
-/* ------------------------------------------------------ one-SE rule */
+/* ------------------------------------------------------ the ridge choice */
 
 static void test_validate_choose_by_hand(void **state)
 {
     (void)state;
     /* G = 4 penalties, k = 3 folds:
-     *   0: 5, 6, 7     mean 6,   sd 1
-     *   1: 4, 5, 6     mean 5,   sd 1, se 1/sqrt 3 = .57735  <- best
-     *   2: 5.2, 5.5, 5.8 mean 5.5 <= 5.57735: within one se
-     *   3: 6, 6, 6.3   mean 6.1 > 5.57735
-     * chosen: 2, the largest penalty within one se of the best. */
-    const double err[] = {5, 6, 7, 4, 5, 6, 5.2, 5.5, 5.8, 6, 6, 6.3};
+     *   0: 5, 6, 7       mean 6, sd 1
+     *   1: 5.004, 5.0, 4.999  mean 5.001  (within 0.1% of 5: 5.005)
+     *   2: 4, 5, 6       mean 5, sd 1, se 1/sqrt 3   <- best
+     *   3: 6, 6, 6.3     mean 6.1
+     * chosen: 1, the smallest penalty within 0.1% of the best. */
+    const double err[] = {5, 6, 7, 5.004, 5.0, 4.999, 4, 5, 6, 6, 6, 6.3};
     double mean[4], se[4];
     size_t best = 99;
-    assert_int_equal(validate_choose(err, 4, 3, mean, se, &best), 2);
-    assert_int_equal(best, 1);
+    assert_int_equal(validate_choose(err, 4, 3, mean, se, &best), 1);
+    assert_int_equal(best, 2);
     assert_close(mean[0], 6, 1e-15, 0);
-    assert_close(mean[1], 5, 1e-15, 0);
-    assert_close(mean[2], 5.5, 1e-15, 0);
+    assert_close(mean[1], 5.001, 1e-15, 0);
+    assert_close(mean[2], 5, 1e-15, 0);
     assert_close(mean[3], 6.1, 1e-15, 0);
-    assert_close(se[1], 1 / sqrt(3), 1e-15, 0);
-    assert_close(se[2], 0.3 / sqrt(3), 1e-13, 0);
+    assert_close(se[2], 1 / sqrt(3), 1e-15, 0);
     /* sd of 6, 6, 6.3: mean 6.1, squares .01 + .01 + .04 = .06, / 2 */
     assert_close(se[3], sqrt(0.03) / sqrt(3), 1e-13, 0);
+    /* penalty 1 just outside the tolerance: best is chosen */
+    const double out[] = {5, 6, 7, 5.006, 5.006, 5.006, 4, 5, 6, 6, 6, 6.3};
+    assert_int_equal(validate_choose(out, 4, 3, mean, se, &best), 2);
+    assert_int_equal(best, 2);
 }
 
 static void test_validate_choose_ties_flat_and_edges(void **state)
@@ -880,66 +883,54 @@ static void test_validate_choose_ties_flat_and_edges(void **state)
     double mean[5], se[5];
     size_t best;
 
-    /* a tie at the minimum: the first (smaller penalty) is best; the rule
-     * still reaches the other */
+    /* a tie at the minimum: the first (smaller penalty) is best and
+     * chosen */
     const double tie[] = {3, 4, 5, 5, 4, 3, 10, 10, 10};
-    assert_int_equal(validate_choose(tie, 3, 3, mean, se, &best), 1);
+    assert_int_equal(validate_choose(tie, 3, 3, mean, se, &best), 0);
     assert_int_equal(best, 0);
     assert_true(mean[0] == mean[1]);
 
-    /* a flat curve (every penalty the same errors): best is the first,
-     * chosen the last (the most penalised) */
+    /* a flat curve (every penalty the same errors): no penalty */
     const double flat[] = {2.5, 3.1, 2.8, 2.5, 3.1, 2.8, 2.5, 3.1, 2.8,
                            2.5, 3.1, 2.8, 2.5, 3.1, 2.8};
-    assert_int_equal(validate_choose(flat, 5, 3, mean, se, &best), 4);
+    assert_int_equal(validate_choose(flat, 5, 3, mean, se, &best), 0);
     assert_int_equal(best, 0);
 
-    /* the minimum at the largest penalty: best and chosen the same */
+    /* the minimum at the largest penalty, the others well above: best and
+     * chosen the same */
     const double down[] = {9, 9.5, 8, 8.5, 7, 7.5, 6, 6.5};
     assert_int_equal(validate_choose(down, 4, 2, mean, se, &best), 3);
     assert_int_equal(best, 3);
 
-    /* the minimum at the smallest penalty with no other penalty within
-     * one se: chosen = best = 0 */
+    /* the minimum at the smallest penalty: chosen = best = 0 */
     const double up[] = {1, 1.2, 3, 3.2, 5, 5.2};
     assert_int_equal(validate_choose(up, 3, 2, mean, se, &best), 0);
     assert_int_equal(best, 0);
 
-    /* a curve that leaves the band and comes back: the largest penalty
-     * within it is chosen, not the nearest one. Means 4.1, 2, 4.2, 2.9, 9;
-     * best 1 (se: sd sqrt 2 over sqrt 2 = 1, so the band ends at 3);
-     * penalty 2 is outside (4.2), 3 inside (2.9), 4 outside: chosen 3 */
-    const double back[] = {4, 4.2, 1, 3, 4, 4.4, 2.8, 3.0, 9, 9};
-    assert_int_equal(validate_choose(back, 5, 2, mean, se, &best), 3);
-    assert_int_equal(best, 1);
-    assert_close(se[1], 1, 1e-15, 0);
+    /* a curve that falls, rises and falls again to its minimum: the first
+     * penalty within the tolerance of the minimum, not the nearest to it.
+     * Means 4.1, 2.001, 4.2, 2.9, 2; best 4; 2.001 <= 2.002: chosen 1 */
+    const double back[] = {4, 4.2, 2.0, 2.002, 4, 4.4, 2.8, 3.0, 1, 3};
+    assert_int_equal(validate_choose(back, 5, 2, mean, se, &best), 1);
+    assert_int_equal(best, 4);
 }
 
 static void test_validate_choose_band_edge_is_inclusive(void **state)
 {
     (void)state;
-    /* best 0: 1, 3 (mean 2, sd sqrt 2, se sqrt 2 / sqrt 2); penalty 1 at
-     * mean exactly 2 + se; penalty 2 a hair above */
-    double mean[3], se[3];
+    /* best 1 at mean exactly 2; penalty 0 at exactly 2 (1 + 1e-3), and,
+     * in a second table, a hair above */
+    double mean[2], se[2];
     size_t best;
-    const double e0[] = {1, 3};
-    double m0, s0;
-    {   /* what the band edge is in double: computed the documented way */
-        double tmp_mean[1], tmp_se[1];
-        size_t b;
-        (void)validate_choose(e0, 1, 2, tmp_mean, tmp_se, &b);
-        m0 = tmp_mean[0];
-        s0 = tmp_se[0];
-        assert_close(m0, 2, 0, 0);
-        assert_close(s0, 1, 1e-15, 0);
-    }
-    double edge = m0 + s0;
+    double edge = 2 * (1 + VALIDATE_CHOOSE_TOL);
     double above = nextafter(edge, INFINITY);
-    double err[] = {1, 3, edge, edge, above, above};
-    assert_int_equal(validate_choose(err, 3, 2, mean, se, &best), 1);
-    assert_int_equal(best, 0);
-    assert_true(mean[1] == edge);
-    assert_true(mean[2] > edge);
+    double in[] = {edge, edge, 1, 3};
+    assert_int_equal(validate_choose(in, 2, 2, mean, se, &best), 0);
+    assert_int_equal(best, 1);
+    assert_true(mean[0] == edge);
+    double out[] = {above, above, 1, 3};
+    assert_int_equal(validate_choose(out, 2, 2, mean, se, &best), 1);
+    assert_true(mean[0] > edge);
 }
 
 static void test_validate_choose_skips_failed_penalties(void **state)
@@ -948,12 +939,11 @@ static void test_validate_choose_skips_failed_penalties(void **state)
     double mean[4], se[4];
     size_t best;
     /* penalty 0 failed in one fold (NaN) though its other fold is the
-     * lowest error of all; 1 is best (mean 3.2, se .2, band to 3.4); 2 is
-     * inside (3.3); 3 failed in a fold though its other is inside: chosen
-     * 2 */
-    const double err[] = {0.5, NAN, 3, 3.4, 3.2, 3.4, NAN, 3.1};
-    assert_int_equal(validate_choose(err, 4, 2, mean, se, &best), 2);
-    assert_int_equal(best, 1);
+     * lowest error of all; 1 (mean 3.2) is within the tolerance of 2
+     * (mean 3.1985, best); 3 failed in a fold: chosen 1 */
+    const double err[] = {0.5, NAN, 3, 3.4, 3.197, 3.2, NAN, 3.1};
+    assert_int_equal(validate_choose(err, 4, 2, mean, se, &best), 1);
+    assert_int_equal(best, 2);
     assert_true(isnan(mean[0]));
     const double all[] = {NAN, 1, INFINITY, 2};
     assert_int_equal(validate_choose(all, 2, 2, mean, se, &best), 2);

@@ -315,15 +315,12 @@ def folds_of(n, k, seed, cls=None):
 
 
 def sheet_folds(fold, k):
-    """The fold ids in the order the Validation sheet numbers them: by the
-    first fitted row in each (engine/run.c cv_measure numbers the folds in
-    the order their rows first appear)."""
-    order = []
-    for f in fold:
-        if f not in order:
-            order.append(int(f))
-    assert len(order) == k, "%d folds appear, want %d" % (len(order), k)
-    return order
+    """The fold ids in the order the Validation sheet lists them: by fold
+    number, the sheet's `fold` column being the fold number + 1
+    (engine/fit.c cv_measure keeps the folds' own numbers)."""
+    present = sorted(set(int(f) for f in fold))
+    assert len(present) == k, "%d folds appear, want %d" % (len(present), k)
+    return present
 
 
 # ------------------------------------------- fits written out here, numpy
@@ -371,16 +368,19 @@ def ridge_grid(n):
     return np.array([0.0] + [n * 10.0 ** (-6 + 9 * (k - 1) / 29) for k in range(1, 31)])
 
 
-def one_se(errs):
-    """The one-standard-error rule of validate.h (ESL sec. 7.10): errs is
+CHOOSE_TOL = 1e-3   # engine/validate.h VALIDATE_CHOOSE_TOL
+
+
+def choose(errs):
+    """The ridge choice of engine/validate.h (validate_choose): errs is
     G x k; mean and se = sd (divisor k - 1) / sqrt(k) per penalty; best =
-    the smallest mean (first on a tie); chosen = the largest penalty whose
-    mean is at most mean[best] + se[best]."""
+    the smallest mean (first on a tie); chosen = the smallest penalty whose
+    mean is at most (1 + 1e-3) mean[best]."""
     k = errs.shape[1]
     mean = errs.mean(axis=1)
     se = errs.std(axis=1, ddof=1) / math.sqrt(k)
     best = int(np.argmin(mean))
-    chosen = max(g for g in range(len(mean)) if g >= best and mean[g] <= mean[best] + se[best])
+    chosen = min(g for g in range(len(mean)) if mean[g] <= mean[best] * (1 + CHOOSE_TOL))
     return chosen, best, mean, se
 
 
@@ -388,8 +388,8 @@ def ridge_choice(X, y, rows, k, seed, scale_from=None):
     """ridge auto's choice on the rows `rows` (engine/run.c choose_ridge as
     validate.h and ridge.h state it): folds of those rows from seed, the
     grid of their count, each penalty at the same penalty per row in every
-    training fold, mean squared error of each fold, one-standard-error
-    rule."""
+    training fold, mean squared error of each fold, the choice of
+    validate.h."""
     nr = len(rows)
     f = folds_of(nr, k, seed)
     pen = ridge_grid(nr)
@@ -399,7 +399,7 @@ def ridge_choice(X, y, rows, k, seed, scale_from=None):
         for g, lam in enumerate(pen):
             fit = ridge_fit(X[tr], y[tr], lam * len(tr) / nr, scale_from)
             errs[g, fo] = np.mean((y[te] - ridge_pred(fit, X[te])) ** 2)
-    return one_se(errs)
+    return choose(errs)
 
 
 def ridge_auto_cv(X, y, k, seed, leak=None):
@@ -1206,9 +1206,16 @@ def test_ridge_auto_choice_is_nested_and_standardized_within_folds():
     got = run.summary()["cv rmse"]
     assert rel_err(got, rmse(honest)) <= 1e-9, "cv rmse %r vs honest %r" % (got, rmse(honest))
     out = []
+    # The standardizing leak is shown by the fixed-penalty test above (its
+    # penalty is large enough for the scale to matter); here the penalty
+    # chosen is small, and the leak that shows is the choice's.
     for leak in ("choice", "scale"):
         lk = rmse(ridge_auto_cv(X, y, 5, 1, leak))
-        assert rel_err(lk, got) > 0.05, "leak %s: cv rmse %r is within 5%% of rowfit's %r" % (leak, lk, got)
+        if leak == "choice":
+            assert rel_err(lk, got) > 0.05, "leak %s: cv rmse %r is within 5%% of rowfit's %r" % (
+                leak, lk, got)
+        else:
+            assert rel_err(lk, got) > 1e-3, "leak %s: cv rmse %r equals rowfit's %r" % (leak, lk, got)
         out.append("%s %.6g" % (leak, lk))
     print("# leakage, ridge auto, 5 folds: cv rmse %.6g = nested %.6g (%.1f digits per row); leaky: %s" % (
         got, rmse(honest), digits(w), ", ".join(out)))
@@ -1340,9 +1347,9 @@ def test_ridge_auto_on_collinear_inputs_picks_a_positive_penalty():
     means = [r[1] for r in v["path"]]
     ses = [r[2] for r in v["path"]]
     best = min(range(31), key=lambda g: (means[g], g))
-    chosen = max(g for g in range(31) if g >= best and means[g] <= means[best] + ses[best])
+    chosen = min(g for g in range(31) if means[g] <= means[best] * (1 + CHOOSE_TOL))
     assert chosen > 0 and rel_err(s["ridge"], v["path"][chosen][0]) <= 1e-12, \
-        "Summary ridge %r is not the one-standard-error choice %r of the path" % (s["ridge"], v["path"][chosen][0])
+        "Summary ridge %r is not the choice %r of the path (validate.h)" % (s["ridge"], v["path"][chosen][0])
     print("# collinear case: vif %.4g, ridge %.6g (grid position %d, best %d)" % (vif, s["ridge"], chosen, best))
 
 
@@ -1374,7 +1381,9 @@ def test_ridge_auto_on_well_conditioned_inputs_keeps_least_squares_coefficients(
 def test_logistic_ridge_auto_on_applicants_demo():
     run = applicants_run("applicants-auto", add=["ridge auto"])
     s = run.summary()
-    assert is_num(s.get("ridge")) and s["ridge"] > 0 and math.isfinite(s["ridge"]), "ridge %r" % s.get("ridge")
+    # the applicants' inputs are far from collinear: a penalty need not
+    # lower the cv log loss by the rule's 0.1%, and 0 is a right answer
+    assert is_num(s.get("ridge")) and s["ridge"] >= 0 and math.isfinite(s["ridge"]), "ridge %r" % s.get("ridge")
     for t, c in run.coef().items():
         assert is_num(c["estimate"]) and math.isfinite(c["estimate"]), "%s estimate %r" % (t, c["estimate"])
     v = run.validation()
@@ -1388,9 +1397,9 @@ def test_logistic_ridge_auto_on_applicants_demo():
     ses = [r[2] for r in path]
     assert all(is_num(m) and m > 0 for m in means), "path log losses %r" % means
     best = min(range(31), key=lambda g: (means[g], g))
-    chosen = max(g for g in range(31) if g >= best and means[g] <= means[best] + ses[best])
-    assert rel_err(s["ridge"], grid[chosen]) <= 1e-12, "Summary ridge %r, the path's choice %r" % (
-        s["ridge"], grid[chosen])
+    chosen = min(g for g in range(31) if means[g] <= means[best] * (1 + CHOOSE_TOL))
+    assert (s["ridge"] == 0 if chosen == 0 else rel_err(s["ridge"], grid[chosen]) <= 1e-12), \
+        "Summary ridge %r, the path's choice %r" % (s["ridge"], grid[chosen])
     marks = [r[5] for r in path if r[5]]
     assert any(m and m.startswith("chosen") for m in marks), "no chosen mark: %r" % marks
     assert all(is_num(x) for x in v["agg"]["all rows"][2:5]), "cv measures %r" % (v["agg"]["all rows"],)
