@@ -30,7 +30,7 @@ endif
 DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
              libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev nettle-dev
 DEB_TEST  := libcmocka-dev python3 python3-openpyxl python3-statsmodels libreoffice-calc-nogui time \
-             clang libclang-rt-14-dev
+             clang libclang-rt-14-dev python3-sklearn
 
 IO_SRC     := $(sort $(wildcard io/*.c))
 ENGINE_SRC := $(sort $(filter-out engine/main.c,$(wildcard engine/*.c)))
