@@ -486,12 +486,8 @@ rf_status linear_fit(const long double *X, const long double *y, size_t n, size_
                      rf_error *err)
 {
     *out = NULL;
-    if (p == 0)
-        return error_set(err, RF_EINPUT, NULL, "the model has no terms");
-    if (p > LINEAR_RANK_MAX)
-        return error_set(err, RF_EINPUT, NULL,
-                         "the model has %zu terms; at most %d are supported",
-                         p, LINEAR_RANK_MAX);
+    if (linear_terms_check(p, err))
+        return err->status;
     if (n < p + 1)
         return error_set(err, RF_EINPUT, NULL,
                          "only %zu usable rows for %zu terms: a linear fit "
@@ -686,6 +682,17 @@ void linear_set_beta(linear_model *m, const long double *X,
     }
     residual_measures(m, X, y);
     m->tcrit = NAN;   /* no intervals: they belong to the exact solution */
+}
+
+rf_status linear_terms_check(size_t p, rf_error *err)
+{
+    if (p == 0)
+        return error_set(err, RF_EINPUT, NULL, "the model has no terms");
+    if (p > LINEAR_RANK_MAX)
+        return error_set(err, RF_EINPUT, NULL,
+                         "the model has %zu terms; at most %d are supported",
+                         p, LINEAR_RANK_MAX);
+    return RF_OK;
 }
 
 int linear_accurate_digits(const linear_model *m)

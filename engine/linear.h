@@ -94,6 +94,11 @@ void linear_free(linear_model *m);  /* accepts NULL */
 void linear_set_beta(linear_model *m, const long double *X,
                      const long double *y, const double *beta);
 
+/* RF_EINPUT (filled into err) for a model with no terms or more than
+ * LINEAR_RANK_MAX, the limit every model that decides its rank here
+ * shares; RF_OK otherwise. */
+rf_status linear_terms_check(size_t p, rf_error *err);
+
 /* (R'R)^-1 = R^-1 R^-T, with R the upper triangle in the first r rows and
  * columns of QR (a GSL QR factor), into cov (r x r, R's column order), the
  * products summed in extended precision. 0, or -1 on no memory or a

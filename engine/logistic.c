@@ -471,12 +471,8 @@ rf_status logistic_fit(const long double *X, const double *y, size_t n,
                        logistic_model **out, rf_error *err)
 {
     *out = NULL;
-    if (p == 0)
-        return error_set(err, RF_EINPUT, NULL, "the model has no terms");
-    if (p > LINEAR_RANK_MAX)
-        return error_set(err, RF_EINPUT, NULL,
-                         "the model has %zu terms; at most %d are supported",
-                         p, LINEAR_RANK_MAX);
+    if (linear_terms_check(p, err))
+        return err->status;
     if (n < p + 1)
         return error_set(err, RF_EINPUT, NULL,
                          "only %zu usable rows for %zu terms: a logistic fit "

@@ -114,12 +114,8 @@ static rf_status frame_init(frame *f, const long double *X,
                             const size_t *rows, size_t m, rf_error *err)
 {
     memset(f, 0, sizeof *f);
-    if (p == 0)
-        return error_set(err, RF_EINPUT, NULL, "the model has no terms");
-    if (p > LINEAR_RANK_MAX)
-        return error_set(err, RF_EINPUT, NULL,
-                         "the model has %zu terms; at most %d are supported",
-                         p, LINEAR_RANK_MAX);
+    if (linear_terms_check(p, err))
+        return err->status;
     if (rows == NULL)
         m = n;
     if (m == 0)
