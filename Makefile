@@ -44,7 +44,7 @@ else
 PROG := rowfit
 endif
 
-.PHONY: all deps test-deps demo check unit bench bench-readers bench-cv fuzz fuzz-replay install clean
+.PHONY: all deps test-deps demo check unit bench bench-readers bench-cv bench-net fuzz fuzz-replay install clean
 all: $(PROG)
 
 $(PROG): $(BUILD)/engine/main.o $(LIB_OBJ)
@@ -165,7 +165,16 @@ $(BUILD)/bench_cv: tests/bench_cv.c $(LIB_OBJ)
 bench-cv: $(BUILD)/bench_cv
 	$(BUILD)/bench_cv --rows $${ROWS:-1000000}
 
-bench: all bench-readers bench-cv
+# tests/bench_net.c: an epoch of the network (16 hidden units, 100,000 rows x
+# 20 inputs) against the machine's cblas_dgemm rate.
+$(BUILD)/bench_net: tests/bench_net.c $(LIB_OBJ)
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS)
+
+bench-net: $(BUILD)/bench_net
+	$(BUILD)/bench_net --rows $${NET_ROWS:-100000} --epochs $${NET_EPOCHS:-20}
+
+bench: all bench-readers bench-cv bench-net
 	@sh tests/bench.sh
 
 install: $(PROG)

@@ -51,6 +51,7 @@
 #include "../engine/gradient.h"
 #include "../engine/linear.h"
 #include "../engine/logistic.h"
+#include "../engine/network.h"
 #include "../engine/peek.h"
 #include "../engine/ridge.h"
 #include "../engine/run.h"
@@ -803,6 +804,52 @@ static void test_oom_gradient_fit_reports_every_failure(void **state)
     yesno_ctx c;
     yesno_fill(&c);
     assert_true(oom_sweep("gradient_fit", run_gradient, &c) > 0);
+}
+
+/* The network on the same twelve applicants (the duplicate column kept:
+ * a network has no rank to decide): two hidden layers, three rows
+ * held out, two L-BFGS iterations and then two Adam epochs, then the
+ * importance of each input. */
+static rf_status run_network(void *ctx, rf_error *err)
+{
+    const yesno_ctx *c = ctx;
+    network_options o;
+    network_options_init(&o);
+    o.classify = 1;
+    o.n_hidden = 2;
+    o.hidden[0] = 3;
+    o.hidden[1] = 2;
+    o.epochs = 2;
+    o.holdout = 0.25;
+    network_model *m = NULL, *a = NULL;
+    const size_t first[2] = { 1, 2 }, len[2] = { 1, 1 };
+    double imp[2];
+    rf_status st = network_fit(c->X, c->y, 12, 3, &o, &m, err);
+    if (st == RF_OK) {
+        o.solver = NETWORK_ADAM;
+        st = network_fit(c->X, c->y, 12, 3, &o, &a, err);
+    }
+    if (st == RF_OK)
+        st = network_importance(m, c->X, c->y, 12, first, len, 2, 5, imp,
+                                err);
+    oom_disarm();
+    if (st == RF_OK) {
+        assert_int_equal(m->n_holdout, 3);
+        assert_int_equal(a->epochs, 2);
+    } else if (m == NULL) {
+        assert_null(a);
+    }
+    network_free(m);
+    network_free(a);
+    return st;
+}
+
+static void test_oom_network_reports_every_failure(void **state)
+{
+    (void)state;
+    yesno_ctx c;
+    yesno_fill(&c);
+    assert_true(oom_sweep("network_fit", run_network, &c) > 0);
 }
 
 /* ------------------------------------------------------------ ridge */
@@ -1616,6 +1663,7 @@ int main(void)
         cmocka_unit_test(test_oom_linear_fit_reports_every_failure),
         cmocka_unit_test(test_oom_logistic_fit_reports_every_failure),
         cmocka_unit_test(test_oom_gradient_fit_reports_every_failure),
+        cmocka_unit_test(test_oom_network_reports_every_failure),
         cmocka_unit_test(test_oom_ridge_reports_every_failure),
         cmocka_unit_test(test_oom_classify_reports_every_failure),
         cmocka_unit_test(test_oom_validate_reports_every_failure),

@@ -1,0 +1,1099 @@
+/*
+ * network.c: the multilayer perceptron of `model network` (see network.h
+ * for the model, the objective and the rules). Backpropagation on blocks
+ * of rows with the matrix products through CBLAS (OpenBLAS at link time);
+ * L-BFGS with a backtracking Armijo line search for small data, Adam on
+ * mini-batches for large data; early stopping, restarts and permutation
+ * importance. Not a general neural-network library.
+ */
+#include "network.h"
+
+#include <float.h>
+#include <limits.h>
+#include <math.h>
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_cblas.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+
+#include "job.h"
+
+_Static_assert(NETWORK_HIDDEN_MAX == JOB_HIDDEN_MAX,
+               "network.h and job.h disagree on the hidden layers");
+_Static_assert(NETWORK_UNITS_MAX == JOB_UNITS_MAX,
+               "network.h and job.h disagree on the units a layer");
+_Static_assert(NETWORK_HIDDEN_DEFAULT == JOB_HIDDEN_DEFAULT,
+               "network.h and job.h disagree on the default layer");
+
+#define LAYERS_MAX (NETWORK_HIDDEN_MAX + 1)
+
+/* Rows per block of a full pass: enough for cblas_dgemm to run near its
+ * rate, few enough that the activations stay in cache for small nets. */
+#define BLOCK_ROWS 512
+
+/* L-BFGS line search (Nocedal & Wright, Numerical Optimization, 2nd ed.,
+ * Algorithm 3.1 with the safeguarded quadratic interpolation of sec. 3.5):
+ * sufficient-decrease constant c1, trial steps at most. */
+#define ARMIJO_C1 1e-4
+#define ARMIJO_TRIALS 60
+/* L-BFGS convergence: a relative fall of the objective below FTOL in one
+ * iteration, or a gradient below GTOL in every entry (common practice). */
+#define LBFGS_FTOL 1e-12
+#define LBFGS_GTOL 1e-9
+
+/* Adam's moment decays and floor (Kingma & Ba, "Adam: a method for
+ * stochastic optimization", ICLR 2015, Algorithm 1 defaults). */
+#define ADAM_B1 0.9
+#define ADAM_B2 0.999
+#define ADAM_EPS 1e-8
+
+/* ------------------------------------------------------------ names */
+
+const char *network_stop_str(network_stop s)
+{
+    switch (s) {
+    case NETWORK_CONVERGED:
+        return "converged: the objective stopped falling";
+    case NETWORK_EARLY_STOP:
+        return "stopped early: the held-out loss stopped falling";
+    case NETWORK_EPOCHS:
+        return "not converged: the epoch cap was reached";
+    }
+    return "unknown";
+}
+
+const char *network_solver_str(network_solver s)
+{
+    switch (s) {
+    case NETWORK_SOLVER_AUTO:
+        return "auto";
+    case NETWORK_LBFGS:
+        return "lbfgs";
+    case NETWORK_ADAM:
+        return "adam";
+    }
+    return "unknown";
+}
+
+void network_options_init(network_options *o)
+{
+    memset(o, 0, sizeof *o);
+    o->n_hidden = 1;
+    o->hidden[0] = NETWORK_HIDDEN_DEFAULT;
+    o->solver = NETWORK_SOLVER_AUTO;
+    o->seed = 1;
+    o->restarts = 1;
+    o->holdout = NETWORK_HOLDOUT;
+}
+
+/* ------------------------------------------------------------ numerics */
+
+/* log(1 + e^z) without overflow or loss for large |z|. */
+static double softplus(double z)
+{
+    return z > 0 ? z + log1p(exp(-z)) : log1p(exp(z));
+}
+
+static double sigmoid(double z)
+{
+    if (z >= 0)
+        return 1 / (1 + exp(-z));
+    double e = exp(z);
+    return e / (1 + e);
+}
+
+/* tanh for the hidden units, branch-free so that the loop over a block
+ * vectorizes and costs a fraction of libm's tanh (which took half the time
+ * of an epoch in tests/bench_net.c). tanh |x| = e / (e + 2) with
+ * e = expm1(2 |x|) (the identity libm uses too), expm1 by range reduction
+ * 2|x| = k ln 2 + r, |r| <= ln 2 / 2, and e^r - 1 by its Taylor series to
+ * r^14 (remainder below r^15 / 15! < 1e-19 |r|; Muller, Elementary
+ * Functions, 3rd ed., ch. 11, for the range reduction). 2^k is built in the exponent
+ * field. |x| >= 19.1 gives 1, as tanh rounds to 1 there. Accurate to a few
+ * units in the last place; test_network.c compares the objective with one
+ * computed through tanhl. */
+static inline double tanh_fast(double x)
+{
+    const double ln2_hi = 6.93147180369123816490e-01;  /* fdlibm's split */
+    const double ln2_lo = 1.90821492927058770002e-10;
+    const double shift = 6755399441055744.0;            /* 1.5 x 2^52 */
+    double a = fabs(x) > 19.1 ? 19.1 : fabs(x);  /* NaN stays NaN */
+    double y = 2 * a;
+    double kd = (y * 1.4426950408889634 + shift) - shift;  /* round */
+    double r = (y - kd * ln2_hi) - kd * ln2_lo;
+    /* e^r - 1 = r (1 + r/2! + ... + r^13/14!), in Estrin's scheme (Knuth,
+     * TAOCP vol. 2, 3rd ed., sec. 4.6.4) for a short dependency chain */
+    double r2 = r * r, r4 = r2 * r2, r8 = r4 * r4;
+    double c01 = 1.0 + r * (1.0 / 2), c23 = 1.0 / 6 + r * (1.0 / 24);
+    double c45 = 1.0 / 120 + r * (1.0 / 720);
+    double c67 = 1.0 / 5040 + r * (1.0 / 40320);
+    double c89 = 1.0 / 362880 + r * (1.0 / 3628800);
+    double cab = 1.0 / 39916800 + r * (1.0 / 479001600);
+    double ccd = 1.0 / 6227020800 + r * (1.0 / 87178291200);
+    double q = r * ((c01 + r2 * c23) + r4 * (c45 + r2 * c67)
+                    + r8 * ((c89 + r2 * cab) + r4 * ccd));
+    uint64_t bits;
+    double kb = kd + shift + 1023;           /* k + 1023 in the low bits */
+    memcpy(&bits, &kb, sizeof bits);
+    bits <<= 52;
+    double two_k;
+    memcpy(&two_k, &bits, sizeof two_k);
+    double e = two_k * q + (two_k - 1);      /* expm1(2a) */
+    return copysign(e / (e + 2), x);
+}
+
+/* Weights before layer l's in theta, and the total; units[] checked by the
+ * caller so that nothing overflows (units <= NETWORK_UNITS_MAX, inputs
+ * bounded by network_fit). */
+static size_t layer_offset(const size_t *units, size_t l)
+{
+    size_t off = 0;
+    for (size_t k = 0; k < l; k++)
+        off += units[k + 1] * units[k] + units[k + 1];
+    return off;
+}
+
+struct network_work {
+    size_t rows, n_layers;
+    double *act[LAYERS_MAX + 1];  /* act[l], l >= 1: rows x units[l];
+                                     act[n_layers] holds the output unit's
+                                     input z */
+    double *delta[2];             /* rows x the widest layer */
+};
+
+void network_work_free(network_work *w)
+{
+    if (w == NULL)
+        return;
+    for (size_t l = 0; l <= LAYERS_MAX; l++)
+        free(w->act[l]);
+    free(w->delta[0]);
+    free(w->delta[1]);
+    free(w);
+}
+
+network_work *network_work_alloc(size_t n_layers, const size_t *units,
+                                 size_t rows)
+{
+    if (n_layers == 0 || n_layers > LAYERS_MAX || rows == 0)
+        return NULL;
+    network_work *w = calloc(1, sizeof *w);
+    if (w == NULL)
+        return NULL;
+    w->rows = rows;
+    w->n_layers = n_layers;
+    size_t widest = 1;
+    for (size_t l = 1; l <= n_layers; l++) {
+        if (units[l] > widest)
+            widest = units[l];
+        w->act[l] = malloc(rows * units[l] * sizeof(double));
+        if (w->act[l] == NULL)
+            goto fail;
+    }
+    w->delta[0] = malloc(rows * widest * sizeof(double));
+    w->delta[1] = malloc(rows * widest * sizeof(double));
+    if (w->delta[0] == NULL || w->delta[1] == NULL)
+        goto fail;
+    return w;
+fail:
+    network_work_free(w);
+    return NULL;
+}
+
+/* C = op(A) op(B) + beta C (C m x n, inner dimension k), by cblas_dgemm
+ * in row-major order. A K of 0 (a
+ * network with no usable input) leaves C as beta C, which the BLAS
+ * reference allows but not every BLAS tests; so it is handled here. */
+static void gemm(enum CBLAS_TRANSPOSE ta, enum CBLAS_TRANSPOSE tb, size_t m, size_t n,
+                 size_t k, const double *A, size_t lda, const double *B,
+                 size_t ldb, double beta, double *C, size_t ldc)
+{
+    if (m == 0 || n == 0)
+        return;
+    if (k == 0) {
+        if (beta != 1)
+            for (size_t i = 0; i < m; i++)
+                for (size_t j = 0; j < n; j++)
+                    C[i * ldc + j] = beta == 0 ? 0 : beta * C[i * ldc + j];
+        return;
+    }
+    cblas_dgemm(CblasRowMajor, ta, tb, (int)m, (int)n, (int)k, 1.0, A,
+                (int)lda, B, (int)ldb, beta, C, (int)ldc);
+}
+
+/* Forward pass of rows rows of Z (rows x units[0]) into w->act. */
+static void forward(size_t L, const size_t *units, const double *theta,
+                    const double *Z, size_t rows, network_work *w)
+{
+    const double *in = Z;
+    const double *th = theta;
+    for (size_t l = 0; l < L; l++) {
+        size_t ni = units[l], no = units[l + 1];
+        const double *W = th, *b = th + no * ni;
+        double *out = w->act[l + 1];
+        /* out = 1 b' + in W' : the bias rows first, then beta = 1 */
+        for (size_t i = 0; i < rows; i++)
+            memcpy(out + i * no, b, no * sizeof *out);
+        gemm(CblasNoTrans, CblasTrans, rows, no, ni, in, ni, W, ni, 1.0,
+             out, no);
+        if (l + 1 < L)
+            for (size_t i = 0; i < rows * no; i++)
+                out[i] = tanh_fast(out[i]);
+        in = out;
+        th += no * ni + no;
+    }
+}
+
+double network_loss_grad(size_t L, const size_t *units, int classify,
+                         const double *theta, const double *Z,
+                         const double *t, size_t n, double lambda,
+                         double *grad, double *mean_loss, network_work *w)
+{
+    size_t nw = layer_offset(units, L);
+    if (grad != NULL)
+        memset(grad, 0, nw * sizeof *grad);
+    long double sum = 0;
+    size_t q = units[0];
+    for (size_t r0 = 0; r0 < n; r0 += w->rows) {
+        size_t rows = n - r0 < w->rows ? n - r0 : w->rows;
+        const double *Zb = Z + r0 * q;
+        const double *tb = t + r0;
+        forward(L, units, theta, Zb, rows, w);
+        const double *z = w->act[L];
+        double *d = w->delta[0];
+        /* loss, and the output delta d loss / d z: out - t for both the
+         * squared error of a linear unit and the log loss of a logistic
+         * one (the canonical link) */
+        for (size_t i = 0; i < rows; i++) {
+            if (classify) {
+                sum += softplus(z[i]) - tb[i] * z[i];
+                d[i] = sigmoid(z[i]) - tb[i];
+            } else {
+                double e = z[i] - tb[i];
+                sum += 0.5 * e * e;
+                d[i] = e;
+            }
+        }
+        if (grad == NULL)
+            continue;
+        /* backpropagation: layer by layer down, d holding d loss / d (the
+         * layer's pre-activation), rows x units[l+1] */
+        for (size_t l = L; l-- > 0;) {
+            size_t ni = units[l], no = units[l + 1];
+            double *gW = grad + layer_offset(units, l), *gb = gW + no * ni;
+            const double *W = theta + layer_offset(units, l);
+            const double *a = l == 0 ? Zb : w->act[l];
+            gemm(CblasTrans, CblasNoTrans, no, ni, rows, d, no, a, ni, 1.0,
+                 gW, ni);
+            for (size_t i = 0; i < rows; i++)
+                for (size_t j = 0; j < no; j++)
+                    gb[j] += d[i * no + j];
+            if (l == 0)
+                break;
+            /* d_prev = (d W) .* (1 - a^2), tanh' = 1 - tanh^2 */
+            double *dp = d == w->delta[0] ? w->delta[1] : w->delta[0];
+            gemm(CblasNoTrans, CblasNoTrans, rows, ni, no, d, no, W, ni, 0.0,
+                 dp, ni);
+            for (size_t i = 0; i < rows * ni; i++)
+                dp[i] *= 1 - a[i] * a[i];
+            d = dp;
+        }
+    }
+    double loss = (double)(sum / n);
+    if (mean_loss != NULL)
+        *mean_loss = loss;
+    long double pen = 0;
+    const double *th = theta;
+    for (size_t l = 0; l < L; l++) {
+        size_t k = units[l + 1] * units[l];
+        for (size_t i = 0; i < k; i++)
+            pen += th[i] * th[i];
+        if (grad != NULL) {
+            double *g = grad + (th - theta);
+            for (size_t i = 0; i < k; i++)
+                g[i] = g[i] / (double)n + lambda * th[i];
+            for (size_t i = k; i < k + units[l + 1]; i++)
+                g[i] /= (double)n;
+        }
+        th += k + units[l + 1];
+    }
+    return loss + 0.5 * lambda * (double)pen;
+}
+
+/* ------------------------------------------------------------ the model */
+
+void network_free(network_model *m)
+{
+    if (m == NULL)
+        return;
+    free(m->units);
+    free(m->W);
+    free(m->b);
+    free(m->theta);
+    free(m->col);
+    free(m->in_mean);
+    free(m->in_scale);
+    free(m->restart_loss);
+    free(m->holdout);
+    free(m);
+}
+
+size_t network_weights(const network_model *m)
+{
+    return m->n_weights;
+}
+
+/* Points W[l], b[l] into theta. */
+static void model_link(network_model *m)
+{
+    double *th = m->theta;
+    for (size_t l = 0; l < m->n_layers; l++) {
+        m->W[l] = th;
+        th += m->units[l + 1] * m->units[l];
+        m->b[l] = th;
+        th += m->units[l + 1];
+    }
+}
+
+double network_predict(const network_model *m, const long double *x)
+{
+    /* two layers' activations on the stack: hidden layers are at most
+     * NETWORK_UNITS_MAX wide, and the input layer is read from x */
+    double buf[2][NETWORK_UNITS_MAX];
+    const size_t L = m->n_layers;
+    const double *in = NULL;
+    double z = 0;
+    for (size_t l = 0; l < L; l++) {
+        size_t ni = m->units[l], no = m->units[l + 1];
+        double *out = l + 1 < L ? buf[l % 2] : &z;
+        for (size_t j = 0; j < no; j++) {
+            const double *Wj = m->W[l] + j * ni;
+            double s = m->b[l][j];
+            if (l == 0) {
+                for (size_t k = 0; k < ni; k++)
+                    s += Wj[k] * (double)((x[m->col[k]]
+                                           - (long double)m->in_mean[k])
+                                          / m->in_scale[k]);
+            } else {
+                for (size_t k = 0; k < ni; k++)
+                    s += Wj[k] * in[k];
+            }
+            out[j] = l + 1 < L ? tanh_fast(s) : s;
+        }
+        in = out;
+    }
+    return m->classify ? sigmoid(z) : m->y_mean + m->y_scale * z;
+}
+
+/* A seed for stream k of a fit with seed s (splitmix64's finalizer: Steele,
+ * Lea & Flood, OOPSLA 2014), so restarts do not share weights with one
+ * another or with the held-out draw. Never 0, which GSL's mt19937 would
+ * replace by its default seed. */
+static unsigned long mix_seed(unsigned long s, unsigned long k)
+{
+    uint64_t z = (uint64_t)s + 0x9E3779B97F4A7C15ULL * (k + 1);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+    z ^= z >> 31;
+    unsigned long v = (unsigned long)z;
+    return v != 0 ? v : 1;
+}
+
+/* Everything one fit needs, sized once (network.h: workspaces are sized
+ * per fit, never inside the optimiser loops). */
+typedef struct fit_ws {
+    size_t L, nw, q, n_train, n_hold;
+    const size_t *units;
+    int classify;
+    double lambda;
+    const double *Zt, *tt;   /* training rows, standardized */
+    const double *Zv, *tv;   /* held-out rows */
+    network_work *w;
+    double *theta, *best, *grad, *g2, *cand, *dir;  /* nw each */
+    double *S, *Y, *rho, *alpha;   /* L-BFGS memory */
+    double *mo, *vo;               /* Adam moments */
+    double *Zb, *tb;               /* Adam batch */
+    size_t *order;                 /* n_train */
+    gsl_rng *rng;
+    const network_options *o;
+} fit_ws;
+
+/* Loss as reported (network.h): mean squared error on the target's scale
+ * from the standardized half squared error, or the log loss itself. */
+static double reported(const network_model *m, double loss)
+{
+    return m->classify ? loss : 2 * loss * m->y_scale * m->y_scale;
+}
+
+static double valid_loss(fit_ws *f, const double *theta)
+{
+    double l;
+    if (f->n_hold == 0)
+        return NAN;
+    network_loss_grad(f->L, f->units, f->classify, theta, f->Zv, f->tv,
+                      f->n_hold, 0, NULL, &l, f->w);
+    return l;
+}
+
+/* Early-stopping bookkeeping shared by the solvers. */
+typedef struct tracker {
+    double best;       /* best held-out loss (standardized), or +inf */
+    double mark;       /* the level the patience counts from */
+    long since;        /* epochs since the loss fell below mark's gain */
+    long patience;
+} tracker;
+
+/* Records the held-out loss v of theta; 1 when patience ran out. */
+static int track(fit_ws *f, tracker *k, const double *theta, double v)
+{
+    if (f->n_hold == 0)
+        return 0;
+    if (v < k->best) {
+        k->best = v;
+        memcpy(f->best, theta, f->nw * sizeof *theta);
+    }
+    if (v < k->mark * (1 - NETWORK_MIN_GAIN)) {
+        k->mark = v;
+        k->since = 0;
+        return 0;
+    }
+    return ++k->since >= k->patience;
+}
+
+/* Nocedal & Wright, 2nd ed., Algorithm 7.4 (two-loop recursion): dir =
+ * -H g with H the L-BFGS inverse-Hessian approximation from the stored
+ * pairs (oldest first from slot (head - count) mod M), H0 = gamma I with
+ * gamma = s'y / y'y of the newest pair (eq. 7.20). */
+static void two_loop(fit_ws *f, const double *g, size_t head, size_t count)
+{
+    const size_t M = NETWORK_LBFGS_MEMORY, nw = f->nw;
+    double *d = f->dir;
+    for (size_t i = 0; i < nw; i++)
+        d[i] = -g[i];
+    for (size_t k = 0; k < count; k++) {
+        size_t s = (head + M - 1 - k) % M;
+        f->alpha[s] = f->rho[s] * cblas_ddot((int)nw, f->S + s * nw, 1, d, 1);
+        cblas_daxpy((int)nw, -f->alpha[s], f->Y + s * nw, 1, d, 1);
+    }
+    if (count > 0) {
+        size_t s = (head + M - 1) % M;
+        double yy = cblas_ddot((int)nw, f->Y + s * nw, 1, f->Y + s * nw, 1);
+        cblas_dscal((int)nw, 1 / (f->rho[s] * yy), d, 1);
+    }
+    for (size_t k = count; k-- > 0;) {
+        size_t s = (head + M - 1 - k) % M;
+        double beta = f->rho[s] * cblas_ddot((int)nw, f->Y + s * nw, 1, d, 1);
+        cblas_daxpy((int)nw, f->alpha[s] - beta, f->S + s * nw, 1, d, 1);
+    }
+}
+
+/* Status of one solver run. */
+typedef struct run_result {
+    network_stop stop;
+    long epochs;
+} run_result;
+
+static rf_status nonfinite(rf_error *err, long epoch, double rate)
+{
+    return error_set(err, RF_EINPUT, NULL,
+                     "the network's training loss became non-finite at "
+                     "epoch %ld; a smaller rate than %g may help", epoch,
+                     rate);
+}
+
+/* Full-batch L-BFGS from f->theta (Nocedal & Wright, 2nd ed., Algorithm
+ * 7.5 with the two-loop recursion, Algorithm 7.4), a backtracking Armijo
+ * line search (Algorithm 3.1) with safeguarded quadratic interpolation
+ * (sec. 3.5). Pairs failing the curvature condition s'y > 0 (which the
+ * Armijo search does not ensure) are skipped (sec. 7.2 discusses the
+ * need; skipping is common practice). On return f->theta holds the
+ * weights to keep. */
+static rf_status run_lbfgs(fit_ws *f, const network_model *m, double rate,
+                           long cap, run_result *res, rf_error *err)
+{
+    const size_t nw = f->nw, M = NETWORK_LBFGS_MEMORY;
+    size_t head = 0, count = 0;
+    double lt;
+    double fx = network_loss_grad(f->L, f->units, f->classify, f->theta,
+                                  f->Zt, f->tt, f->n_train, f->lambda,
+                                  f->grad, &lt, f->w);
+    if (!isfinite(fx))
+        return nonfinite(err, 0, rate);
+    tracker k = { INFINITY, INFINITY, 0, NETWORK_PATIENCE_LBFGS };
+    track(f, &k, f->theta, valid_loss(f, f->theta));
+    res->stop = NETWORK_EPOCHS;
+    res->epochs = 0;
+    for (long it = 1; it <= cap; it++) {
+        two_loop(f, f->grad, head, count);
+        double gd = cblas_ddot((int)nw, f->grad, 1, f->dir, 1);
+        if (!(gd < 0)) {   /* not a descent direction: forget the pairs */
+            count = 0;
+            two_loop(f, f->grad, head, 0);
+            gd = cblas_ddot((int)nw, f->grad, 1, f->dir, 1);
+        }
+        double gmax = 0;
+        for (size_t i = 0; i < nw; i++)
+            gmax = fmax(gmax, fabs(f->grad[i]));
+        if (!(gd < 0) || gmax <= LBFGS_GTOL) {
+            res->stop = NETWORK_CONVERGED;
+            break;
+        }
+        /* first trial: the quasi-Newton step, or with no pairs yet a step
+         * of length 1 along -g; never longer than rate times it */
+        double step = count > 0 ? 1 : 1 / cblas_dnrm2((int)nw, f->grad, 1);
+        step *= rate;
+        double fn = NAN, ln = NAN;
+        int ok = 0;
+        for (int trial = 0; trial < ARMIJO_TRIALS; trial++) {
+            for (size_t i = 0; i < nw; i++)
+                f->cand[i] = f->theta[i] + step * f->dir[i];
+            fn = network_loss_grad(f->L, f->units, f->classify, f->cand,
+                                   f->Zt, f->tt, f->n_train, f->lambda,
+                                   f->g2, &ln, f->w);
+            if (isfinite(fn) && fn <= fx + ARMIJO_C1 * step * gd) {
+                ok = 1;
+                break;
+            }
+            /* minimiser of the quadratic through f(0), f'(0), f(step),
+             * kept within [0.1, 0.5] of the step (sec. 3.5) */
+            double next = 0.5 * step;
+            if (isfinite(fn)) {
+                double den = 2 * (fn - fx - gd * step);
+                if (den > 0)
+                    next = fmin(0.5 * step,
+                                fmax(0.1 * step, -gd * step * step / den));
+            }
+            step = next;
+        }
+        if (!ok) {
+            if (count > 0) {   /* retry from steepest descent */
+                count = 0;
+                it--;
+                continue;
+            }
+            res->stop = NETWORK_CONVERGED;   /* no decrease left to find */
+            break;
+        }
+        /* the pair (s, y) into the ring */
+        double *s = f->S + head * nw, *yv = f->Y + head * nw;
+        for (size_t i = 0; i < nw; i++) {
+            s[i] = f->cand[i] - f->theta[i];
+            yv[i] = f->g2[i] - f->grad[i];
+        }
+        double sy = cblas_ddot((int)nw, s, 1, yv, 1);
+        double yy = cblas_ddot((int)nw, yv, 1, yv, 1);
+        if (sy > DBL_EPSILON * yy && yy > 0) {
+            f->rho[head] = 1 / sy;
+            head = (head + 1) % M;
+            if (count < M)
+                count++;
+        }
+        double fold = fx;
+        memcpy(f->theta, f->cand, nw * sizeof *f->theta);
+        memcpy(f->grad, f->g2, nw * sizeof *f->grad);
+        fx = fn;
+        lt = ln;
+        res->epochs = it;
+        double v = valid_loss(f, f->theta);
+        if (f->o->progress != NULL)
+            f->o->progress(f->o->progress_ctx, it, reported(m, lt),
+                           f->n_hold ? reported(m, v) : NAN);
+        if (track(f, &k, f->theta, v)) {
+            res->stop = NETWORK_EARLY_STOP;
+            break;
+        }
+        if (fold - fx <= LBFGS_FTOL * fmax(fmax(fabs(fold), fabs(fx)), 1)) {
+            res->stop = NETWORK_CONVERGED;
+            break;
+        }
+    }
+    if (f->n_hold > 0)
+        memcpy(f->theta, f->best, nw * sizeof *f->theta);
+    return RF_OK;
+}
+
+/* Mini-batch Adam from f->theta (Kingma & Ba, ICLR 2015, Algorithm 1),
+ * the rows shuffled every epoch with f->rng. */
+static rf_status run_adam(fit_ws *f, const network_model *m, double rate,
+                          long cap, run_result *res, rf_error *err)
+{
+    const size_t nw = f->nw, q = f->q;
+    memset(f->mo, 0, nw * sizeof *f->mo);
+    memset(f->vo, 0, nw * sizeof *f->vo);
+    for (size_t i = 0; i < f->n_train; i++)
+        f->order[i] = i;
+    tracker k = { INFINITY, INFINITY, 0, NETWORK_PATIENCE_ADAM };
+    track(f, &k, f->theta, valid_loss(f, f->theta));
+    double b1t = 1, b2t = 1;
+    res->stop = NETWORK_EPOCHS;
+    res->epochs = 0;
+    for (long ep = 1; ep <= cap; ep++) {
+        gsl_ran_shuffle(f->rng, f->order, f->n_train, sizeof *f->order);
+        long double epoch_loss = 0;
+        for (size_t r0 = 0; r0 < f->n_train; r0 += NETWORK_BATCH) {
+            size_t rows = f->n_train - r0 < NETWORK_BATCH ? f->n_train - r0
+                                                          : NETWORK_BATCH;
+            for (size_t i = 0; i < rows; i++) {
+                size_t r = f->order[r0 + i];
+                memcpy(f->Zb + i * q, f->Zt + r * q, q * sizeof *f->Zb);
+                f->tb[i] = f->tt[r];
+            }
+            double lb;
+            double fb = network_loss_grad(f->L, f->units, f->classify,
+                                          f->theta, f->Zb, f->tb, rows,
+                                          f->lambda, f->grad, &lb, f->w);
+            if (!isfinite(fb))
+                return nonfinite(err, ep, rate);
+            epoch_loss += (long double)lb * rows;
+            b1t *= ADAM_B1;
+            b2t *= ADAM_B2;
+            double a = rate * sqrt(1 - b2t) / (1 - b1t);  /* sec. 2 */
+            for (size_t i = 0; i < nw; i++) {
+                double g = f->grad[i];
+                f->mo[i] = ADAM_B1 * f->mo[i] + (1 - ADAM_B1) * g;
+                f->vo[i] = ADAM_B2 * f->vo[i] + (1 - ADAM_B2) * g * g;
+                f->theta[i] -= a * f->mo[i] / (sqrt(f->vo[i]) + ADAM_EPS);
+            }
+        }
+        for (size_t i = 0; i < nw; i++)
+            if (!isfinite(f->theta[i]))
+                return nonfinite(err, ep, rate);
+        res->epochs = ep;
+        double v = valid_loss(f, f->theta);
+        if (f->o->progress != NULL)
+            f->o->progress(f->o->progress_ctx, ep,
+                           reported(m, (double)(epoch_loss / f->n_train)),
+                           f->n_hold ? reported(m, v) : NAN);
+        if (track(f, &k, f->theta, v)) {
+            res->stop = NETWORK_EARLY_STOP;
+            break;
+        }
+    }
+    if (f->n_hold > 0)
+        memcpy(f->theta, f->best, nw * sizeof *f->theta);
+    return RF_OK;
+}
+
+/* Glorot-uniform weights, U(-a, a) with a = sqrt(6 / (fan_in + fan_out))
+ * (Glorot & Bengio, AISTATS 2010, eq. 16), zero biases. */
+static void glorot(const size_t *units, size_t L, double *theta, gsl_rng *r)
+{
+    double *th = theta;
+    for (size_t l = 0; l < L; l++) {
+        size_t ni = units[l], no = units[l + 1];
+        double a = sqrt(6.0 / (double)(ni + no));
+        for (size_t i = 0; i < no * ni; i++)
+            th[i] = a * (2 * gsl_rng_uniform(r) - 1);
+        memset(th + no * ni, 0, no * sizeof *th);
+        th += no * ni + no;
+    }
+}
+
+static rf_status check_options(const network_options *o, rf_error *err)
+{
+    if (o->n_hidden < 1 || o->n_hidden > NETWORK_HIDDEN_MAX)
+        return error_set(err, RF_EINPUT, NULL,
+                         "a network has 1 to %d hidden layers, not %zu",
+                         NETWORK_HIDDEN_MAX, o->n_hidden);
+    for (size_t l = 0; l < o->n_hidden; l++)
+        if (o->hidden[l] < 1 || o->hidden[l] > NETWORK_UNITS_MAX)
+            return error_set(err, RF_EINPUT, NULL,
+                             "hidden layer %zu has %zu units; a layer has 1 "
+                             "to %d", l + 1, o->hidden[l], NETWORK_UNITS_MAX);
+    if (o->solver != NETWORK_SOLVER_AUTO && o->solver != NETWORK_LBFGS
+        && o->solver != NETWORK_ADAM)
+        return error_set(err, RF_EINPUT, NULL, "unknown network solver %d",
+                         (int)o->solver);
+    if (o->restarts < 1)
+        return error_set(err, RF_EINPUT, NULL,
+                         "restarts must be 1 or more, not %zu", o->restarts);
+    if (!isfinite(o->ridge) || o->ridge < 0)
+        return error_set(err, RF_EINPUT, NULL,
+                         "the ridge penalty must be 0 or more, not %g",
+                         o->ridge);
+    if (!isfinite(o->rate) || o->rate < 0)
+        return error_set(err, RF_EINPUT, NULL,
+                         "the rate must be a positive number (or 0 for the "
+                         "default), not %g", o->rate);
+    if (o->epochs < 0)
+        return error_set(err, RF_EINPUT, NULL,
+                         "epochs must be 0 (the default) or more, not %ld",
+                         o->epochs);
+    if (!(o->holdout >= 0 && o->holdout <= 0.5))
+        return error_set(err, RF_EINPUT, NULL,
+                         "the held-out share must be from 0 to 0.5, not %g",
+                         o->holdout);
+    return RF_OK;
+}
+
+/* Frees what fit_ws owns (not the model). */
+static void ws_free(fit_ws *f)
+{
+    network_work_free(f->w);
+    free(f->theta);
+    free(f->best);
+    free(f->grad);
+    free(f->g2);
+    free(f->cand);
+    free(f->dir);
+    free(f->S);
+    free(f->Y);
+    free(f->rho);
+    free(f->alpha);
+    free(f->mo);
+    free(f->vo);
+    free(f->Zb);
+    free(f->tb);
+    free(f->order);
+    if (f->rng != NULL)
+        gsl_rng_free(f->rng);
+}
+
+rf_status network_fit(const long double *X, const double *y, size_t n,
+                      size_t p, const network_options *o,
+                      network_model **out, rf_error *err)
+{
+    *out = NULL;
+    rf_status st = check_options(o, err);
+    if (st != RF_OK)
+        return st;
+    if (p == 0)
+        return error_set(err, RF_EINPUT, NULL, "the model has no terms");
+    if (n > INT_MAX || p > INT_MAX || n > SIZE_MAX / sizeof(double) / p)
+        return error_set(err, RF_EINPUT, NULL,
+                         "%zu rows by %zu terms is too large for the network",
+                         n, p);
+    size_t n_hold = 0;
+    if (o->holdout > 0) {
+        n_hold = (size_t)floor(o->holdout * (double)n + 0.5);
+        if (n_hold < 1)
+            n_hold = 1;
+    }
+    if (n < n_hold + 2)
+        return error_set(err, RF_EINPUT, NULL,
+                         "a network needs at least %zu rows (2 to train%s), "
+                         "not %zu", n_hold + 2,
+                         n_hold ? " and the held-out ones" : "", n);
+    for (size_t i = 0; i < n; i++) {
+        if (!isfinite(y[i]))
+            return error_set(err, RF_EINPUT, NULL,
+                             "fitted row %zu has a non-finite target", i + 1);
+        if (o->classify && y[i] != 0 && y[i] != 1)
+            return error_set(err, RF_EINPUT, NULL,
+                             "fitted row %zu has the target %g; a yes/no "
+                             "network needs 0 or 1", i + 1, y[i]);
+        for (size_t j = 0; j < p; j++)
+            if (!isfinite(X[i * p + j]))
+                return error_set(err, RF_EINPUT, NULL,
+                                 "fitted row %zu has a non-finite input",
+                                 i + 1);
+    }
+
+    fit_ws f;
+    memset(&f, 0, sizeof f);
+    f.o = o;
+    f.classify = o->classify;
+    f.n_hold = n_hold;
+    f.n_train = n - n_hold;
+    double *Z = NULL, *t = NULL;
+    char *held = NULL;
+    st = RF_ENOMEM;
+    network_model *m = calloc(1, sizeof *m);
+    if (m == NULL)
+        goto fail;
+    const size_t L = o->n_hidden + 1;
+    m->p = p;
+    m->n = n;
+    m->n_layers = L;
+    m->classify = o->classify;
+    m->ridge = o->ridge;
+    m->restarts = o->restarts;
+    m->units = malloc((L + 1) * sizeof *m->units);
+    m->W = malloc(L * sizeof *m->W);
+    m->b = malloc(L * sizeof *m->b);
+    m->in_mean = malloc(p * sizeof *m->in_mean);
+    m->in_scale = malloc(p * sizeof *m->in_scale);
+    m->col = malloc(p * sizeof *m->col);
+    m->restart_loss = malloc(o->restarts * sizeof *m->restart_loss);
+    m->holdout = malloc((n_hold ? n_hold : 1) * sizeof *m->holdout);
+    held = calloc(n, 1);
+    f.rng = gsl_rng_alloc(gsl_rng_mt19937);
+    if (m->units == NULL || m->W == NULL || m->b == NULL
+        || m->in_mean == NULL || m->in_scale == NULL || m->col == NULL
+        || m->restart_loss == NULL || m->holdout == NULL || held == NULL
+        || f.rng == NULL)
+        goto fail;
+
+    /* 1. the held-out rows: a simple random sample drawn with the seed,
+     * kept in ascending order (gsl_ran_choose keeps the order) */
+    m->n_holdout = n_hold;
+    if (n_hold > 0) {
+        size_t *all = malloc(n * sizeof *all);
+        if (all == NULL)
+            goto fail;
+        for (size_t i = 0; i < n; i++)
+            all[i] = i;
+        gsl_rng_set(f.rng, mix_seed(o->seed, 0));
+        gsl_ran_choose(f.rng, m->holdout, n_hold, all, n, sizeof *all);
+        free(all);
+        for (size_t i = 0; i < n_hold; i++)
+            held[m->holdout[i]] = 1;
+    }
+
+    /* 2. standardization on the training rows, two passes in long double;
+     * a column constant there carries nothing (the intercept among them) */
+    size_t q = 0;
+    for (size_t j = 0; j < p; j++) {
+        long double sum = 0, ss = 0;
+        for (size_t i = 0; i < n; i++)
+            if (!held[i])
+                sum += X[i * p + j];
+        long double mean = sum / f.n_train;
+        for (size_t i = 0; i < n; i++)
+            if (!held[i]) {
+                long double d = X[i * p + j] - mean;
+                ss += d * d;
+            }
+        double sd = (double)sqrtl(ss / f.n_train);
+        if (!(sd > 0) || !isfinite(sd))
+            continue;
+        m->col[q] = j;
+        m->in_mean[q] = (double)mean;
+        m->in_scale[q] = sd;
+        q++;
+    }
+    m->y_mean = 0;
+    m->y_scale = 1;
+    if (!o->classify) {
+        long double sum = 0, ss = 0;
+        for (size_t i = 0; i < n; i++)
+            if (!held[i])
+                sum += y[i];
+        long double mean = sum / f.n_train;
+        for (size_t i = 0; i < n; i++)
+            if (!held[i])
+                ss += (y[i] - mean) * (y[i] - mean);
+        double sd = (double)sqrtl(ss / f.n_train);
+        m->y_mean = (double)mean;
+        if (sd > 0 && isfinite(sd))
+            m->y_scale = sd;
+    }
+
+    /* 3. shapes and sizes: q < INT_MAX, units <= NETWORK_UNITS_MAX, so the
+     * weights count fits a size_t; n q doubles were bounded above */
+    m->units[0] = q;
+    for (size_t l = 0; l < o->n_hidden; l++)
+        m->units[l + 1] = o->hidden[l];
+    m->units[L] = 1;
+    size_t nw = layer_offset(m->units, L);
+    if (nw > (size_t)INT_MAX / NETWORK_LBFGS_MEMORY) {
+        st = error_set(err, RF_EINPUT, NULL,
+                       "a network of %zu weights is too large", nw);
+        goto fail;
+    }
+    m->n_weights = nw;
+    m->theta = malloc(nw * sizeof *m->theta);
+    if (m->theta == NULL)
+        goto fail;
+    model_link(m);
+    m->solver = o->solver;
+    if (m->solver == NETWORK_SOLVER_AUTO)
+        m->solver = (double)f.n_train * (double)nw
+                    <= (double)NETWORK_LBFGS_BUDGET ? NETWORK_LBFGS
+                                                     : NETWORK_ADAM;
+    int adam = m->solver == NETWORK_ADAM;
+    m->epochs_cap = o->epochs > 0 ? o->epochs
+                    : adam ? NETWORK_ADAM_EPOCHS : NETWORK_LBFGS_EPOCHS;
+    m->rate = o->rate > 0 ? o->rate : adam ? NETWORK_ADAM_RATE : 1;
+
+    /* 4. the standardized rows: training rows first, then the held-out
+     * ones, each block contiguous for the products */
+    Z = malloc((n * q > 0 ? n * q : 1) * sizeof *Z);
+    t = malloc(n * sizeof *t);
+    if (Z == NULL || t == NULL)
+        goto fail;
+    for (size_t i = 0, a = 0, h = f.n_train; i < n; i++) {
+        size_t r = held[i] ? h++ : a++;
+        for (size_t k = 0; k < q; k++)
+            Z[r * q + k] = (double)((X[i * p + m->col[k]]
+                                     - (long double)m->in_mean[k])
+                                    / m->in_scale[k]);
+        t[r] = o->classify ? y[i] : (y[i] - m->y_mean) / m->y_scale;
+    }
+    f.L = L;
+    f.nw = nw;
+    f.q = q;
+    f.units = m->units;
+    f.lambda = o->ridge / (double)f.n_train;
+    f.Zt = Z;
+    f.tt = t;
+    f.Zv = Z + f.n_train * q;
+    f.tv = t + f.n_train;
+    size_t block = n < BLOCK_ROWS ? n : BLOCK_ROWS;
+    f.w = network_work_alloc(L, m->units, block);
+    f.theta = malloc(nw * sizeof *f.theta);
+    f.best = malloc(nw * sizeof *f.best);
+    f.grad = malloc(nw * sizeof *f.grad);
+    if (f.w == NULL || f.theta == NULL || f.best == NULL || f.grad == NULL)
+        goto fail;
+    if (adam) {
+        size_t nb = f.n_train < NETWORK_BATCH ? f.n_train : NETWORK_BATCH;
+        f.mo = malloc(nw * sizeof *f.mo);
+        f.vo = malloc(nw * sizeof *f.vo);
+        f.Zb = malloc((nb * q > 0 ? nb * q : 1) * sizeof *f.Zb);
+        f.tb = malloc(nb * sizeof *f.tb);
+        f.order = malloc(f.n_train * sizeof *f.order);
+        if (f.mo == NULL || f.vo == NULL || f.Zb == NULL || f.tb == NULL
+            || f.order == NULL)
+            goto fail;
+    } else {
+        f.g2 = malloc(nw * sizeof *f.g2);
+        f.cand = malloc(nw * sizeof *f.cand);
+        f.dir = malloc(nw * sizeof *f.dir);
+        f.S = malloc(NETWORK_LBFGS_MEMORY * nw * sizeof *f.S);
+        f.Y = malloc(NETWORK_LBFGS_MEMORY * nw * sizeof *f.Y);
+        f.rho = malloc(NETWORK_LBFGS_MEMORY * sizeof *f.rho);
+        f.alpha = malloc(NETWORK_LBFGS_MEMORY * sizeof *f.alpha);
+        if (f.g2 == NULL || f.cand == NULL || f.dir == NULL || f.S == NULL
+            || f.Y == NULL || f.rho == NULL || f.alpha == NULL)
+            goto fail;
+    }
+
+    /* 5. the restarts, the best kept by held-out loss (training loss when
+     * nothing is held out) */
+    double best = INFINITY;
+    for (size_t r = 0; r < o->restarts; r++) {
+        gsl_rng_set(f.rng, mix_seed(o->seed, r + 1));
+        glorot(m->units, L, f.theta, f.rng);
+        run_result res = { NETWORK_EPOCHS, 0 };
+        st = adam ? run_adam(&f, m, m->rate, m->epochs_cap, &res, err)
+                  : run_lbfgs(&f, m, m->rate, m->epochs_cap, &res, err);
+        if (st != RF_OK)
+            goto fail;
+        double lt;
+        network_loss_grad(L, m->units, f.classify, f.theta, f.Zt, f.tt,
+                          f.n_train, 0, NULL, &lt, f.w);
+        double lv = valid_loss(&f, f.theta);
+        double score = n_hold ? lv : lt;
+        if (!isfinite(lt) || (n_hold && !isfinite(lv))) {
+            st = nonfinite(err, res.epochs, m->rate);
+            goto fail;
+        }
+        m->restart_loss[r] = reported(m, score);
+        if (r == 0 || score < best) {
+            best = score;
+            memcpy(m->theta, f.theta, nw * sizeof *m->theta);
+            m->restart_best = r;
+            m->stop = res.stop;
+            m->epochs = res.epochs;
+            m->train_loss = reported(m, lt);
+            m->valid_loss = n_hold ? reported(m, lv) : NAN;
+        }
+    }
+    free(Z);
+    free(t);
+    free(held);
+    ws_free(&f);
+    *out = m;
+    return RF_OK;
+
+fail:
+    if (st == RF_ENOMEM)
+        error_nomem(err, NULL);
+    free(Z);
+    free(t);
+    free(held);
+    ws_free(&f);
+    network_free(m);
+    return st;
+}
+
+/* ------------------------------------------------------------ importance */
+
+rf_status network_importance(const network_model *m, const long double *X,
+                             const double *y, size_t n,
+                             const size_t *group_first,
+                             const size_t *group_len, size_t n_groups,
+                             unsigned long seed, double *out, rf_error *err)
+{
+    if (n != m->n)
+        return error_set(err, RF_EINPUT, NULL,
+                         "importance needs the %zu rows of the fit, not %zu",
+                         m->n, n);
+    for (size_t g = 0; g < n_groups; g++)
+        if (group_first[g] > m->p || group_len[g] > m->p - group_first[g])
+            return error_set(err, RF_EINPUT, NULL,
+                             "input group %zu (columns %zu to %zu) is outside "
+                             "the %zu columns", g + 1, group_first[g] + 1,
+                             group_first[g] + group_len[g], m->p);
+    const size_t q = m->units[0];
+    const size_t nh = m->n_holdout ? m->n_holdout : n;
+    double *Z = malloc((nh * q > 0 ? nh * q : 1) * sizeof *Z);
+    double *Zp = malloc((nh * q > 0 ? nh * q : 1) * sizeof *Zp);
+    double *t = malloc(nh * sizeof *t);
+    size_t *perm = malloc(nh * sizeof *perm);
+    network_work *w = network_work_alloc(m->n_layers, m->units,
+                                         nh < BLOCK_ROWS ? nh : BLOCK_ROWS);
+    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+    if (Z == NULL || Zp == NULL || t == NULL || perm == NULL || w == NULL
+        || r == NULL) {
+        free(Z);
+        free(Zp);
+        free(t);
+        free(perm);
+        network_work_free(w);
+        if (r != NULL)
+            gsl_rng_free(r);
+        return error_nomem(err, NULL);
+    }
+    for (size_t k = 0; k < nh; k++) {
+        size_t i = m->n_holdout ? m->holdout[k] : k;
+        for (size_t u = 0; u < q; u++)
+            Z[k * q + u] = (double)((X[i * m->p + m->col[u]]
+                                     - (long double)m->in_mean[u])
+                                    / m->in_scale[u]);
+        t[k] = m->classify ? y[i] : (y[i] - m->y_mean) / m->y_scale;
+    }
+    double base;
+    network_loss_grad(m->n_layers, m->units, m->classify, m->theta, Z, t, nh,
+                      0, NULL, &base, w);
+    gsl_rng_set(r, mix_seed(seed, 0));
+    for (size_t g = 0; g < n_groups; g++) {
+        /* the group's input units (col[] ascends with the columns) */
+        size_t u0 = 0, u1;
+        while (u0 < q && m->col[u0] < group_first[g])
+            u0++;
+        u1 = u0;
+        while (u1 < q && m->col[u1] < group_first[g] + group_len[g])
+            u1++;
+        if (u1 == u0) {
+            out[g] = 0;
+            continue;
+        }
+        long double rise = 0;
+        for (int s = 0; s < NETWORK_PERMUTATIONS; s++) {
+            for (size_t k = 0; k < nh; k++)
+                perm[k] = k;
+            gsl_ran_shuffle(r, perm, nh, sizeof *perm);
+            memcpy(Zp, Z, nh * q * sizeof *Zp);
+            for (size_t k = 0; k < nh; k++)
+                memcpy(Zp + k * q + u0, Z + perm[k] * q + u0,
+                       (u1 - u0) * sizeof *Zp);
+            double l;
+            network_loss_grad(m->n_layers, m->units, m->classify, m->theta,
+                              Zp, t, nh, 0, NULL, &l, w);
+            rise += l - base;
+        }
+        out[g] = reported(m, (double)(rise / NETWORK_PERMUTATIONS));
+    }
+    free(Z);
+    free(Zp);
+    free(t);
+    free(perm);
+    network_work_free(w);
+    gsl_rng_free(r);
+    return RF_OK;
+}
