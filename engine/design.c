@@ -782,6 +782,21 @@ rf_status design_build(const job *j, const table *data, const table *score,
             goto done;
         }
     d->target_col = tsrc.col;
+    /* model network: a classifier for yes/no targets, a regression for
+     * numbers. It classifies when the job names `positive`, or when most
+     * of the target column's filled cells are text or yes-no cells (a
+     * column of numbers, 0/1 included, is a numeric target unless
+     * `positive` says otherwise; a stray 'n/a' in prices does not make
+     * them labels) */
+    if (j->model == MODEL_NETWORK) {
+        size_t words = 0, filled = 0;
+        for (size_t r = 0; tsrc.col >= 0 && r < table_rows(data); r++) {
+            cell_type ct = table_cell_type(data, r, (size_t)tsrc.col);
+            filled += ct != CELL_BLANK;
+            words += ct == CELL_TEXT || ct == CELL_BOOL;
+        }
+        d->binary = j->positive != NULL || 2 * words > filled;
+    }
     if (j->id.name) {
         d->id_col_data = table_find_column(data, j->id.name);
         if (d->id_col_data < 0) {

@@ -49,6 +49,11 @@ struct fit {
     diagnose_result *diag;
     double *vif;
     size_t *fold_id;
+    /* model network */
+    network_model *net;
+    network_options net_opt;
+    double *fitted;          /* per fitted row: estimate or probability */
+    double *importance;      /* per design input */
 };
 
 void fit_free(fit *f)
@@ -69,6 +74,9 @@ void fit_free(fit *f)
     diagnose_free(f->diag);
     free(f->vif);
     free(f->fold_id);
+    network_free(f->net);
+    free(f->fitted);
+    free(f->importance);
     free(f);
 }
 
@@ -91,6 +99,46 @@ typedef struct fold_set {
     size_t nt, ntest;
 } fold_set;
 
+/* A network's fold: its training rows trained as the full fit is (same
+ * options, so its own held-out slice and standardizing come from those
+ * rows), the test rows estimated. A training loss that turns non-finite
+ * fails the fold. */
+static rf_status fold_fit_network(const design *d, const fit *f,
+                                  const fold_set *fs, double *pred,
+                                  size_t *failed, rf_error *err)
+{
+    size_t p = d->p;
+    long double *Xt = malloc((fs->nt ? fs->nt : 1) * p * sizeof *Xt);
+    double *yt = malloc((fs->nt ? fs->nt : 1) * sizeof *yt);
+    rf_status st = RF_OK;
+    network_model *m = NULL;
+    if (Xt == NULL || yt == NULL) {
+        st = error_nomem(err, NULL);
+        goto out;
+    }
+    for (size_t t = 0; t < fs->nt; t++) {
+        memcpy(Xt + t * p, d->X + fs->train[t] * p, p * sizeof *Xt);
+        yt[t] = f->y[fs->train[t]];
+    }
+    rf_error e2;
+    memset(&e2, 0, sizeof e2);
+    st = network_fit(Xt, yt, fs->nt, p, &f->net_opt, &m, &e2);
+    if (st == RF_ENOMEM || st == RF_ESYSTEM) {
+        *err = e2;
+        goto out;
+    }
+    *failed = st != RF_OK;
+    for (size_t t = 0; t < fs->ntest; t++)
+        pred[t] = st == RF_OK ? network_predict(m, d->X + fs->test[t] * p)
+                              : NAN;
+    st = RF_OK;
+out:
+    network_free(m);
+    free(Xt);
+    free(yt);
+    return st;
+}
+
 /* Fits the training rows at each of G penalties and fills pred (G x
  * ntest, penalty-major) with the test rows' estimates or probabilities,
  * NaN where a fit failed (a logistic fold that separates without a
@@ -109,6 +157,10 @@ static rf_status fold_fit(const job *j, const design *d, const fit *f,
     *failed = 0;
     if (beta == NULL)
         return error_nomem(err, NULL);
+    if (j->model == MODEL_NETWORK) {
+        free(beta);
+        return fold_fit_network(d, f, fs, pred, failed, err);
+    }
     if (j->model != MODEL_LOGISTIC) {
         ridge_path *path = NULL;
         rf_error e2;
@@ -224,7 +276,7 @@ static rf_status choose_ridge(const job *j, const design *d, const fit *f,
                               unsigned long seed, double *mean, double *se,
                               size_t *best, size_t *chosen, rf_error *err)
 {
-    int classify = j->model == MODEL_LOGISTIC;
+    int classify = d->binary;
     if (k > nr)
         k = nr;
     const double *y = classify ? f->y : NULL;
@@ -405,7 +457,7 @@ static rf_status cross_validate(const job *j, const design *d, fit *f,
     rf_status st = cv_folds(j, n, &k, err);
     if (st || k == 0)
         return st;
-    int classify = j->model == MODEL_LOGISTIC;
+    int classify = d->binary;
     f->cv.k = k;
     f->cv.seed = j->seed;
     f->cv.stratified = classify;
@@ -422,7 +474,7 @@ static rf_status cross_validate(const job *j, const design *d, fit *f,
         st = at_model(j, st, err);
         goto out;
     }
-    if (!classify && f->rm.ridge == 0 && !j->ridge_auto) {
+    if (j->model == MODEL_LINEAR && f->rm.ridge == 0 && !j->ridge_auto) {
         f->cv.method = "each fold's estimates updated from the full fit's "
                        "QR factor (exact, the same as refitting)";
         st = linear_cv(f->lin, d->X, d->y, f->fold, k, f->cv_pred,
@@ -433,6 +485,9 @@ static rf_status cross_validate(const job *j, const design *d, fit *f,
     f->cv.method = j->ridge_auto
         ? "each fold's penalty chosen again by cross-validation within its "
           "training rows, then its training rows refitted at it"
+        : j->model == MODEL_NETWORK
+        ? "each fold's training rows trained as the full network is (its "
+          "own held-out slice, standardizing and start weights)"
         : classify ? "each fold's training rows refitted by Newton's method "
                      "(IRLS)"
                    : "each fold's training rows refitted (ridge, exact)";
@@ -663,12 +718,118 @@ static rf_status fit_ridge(const job *j, const design *d, fit *f,
 }
 
 /* The job's model on the design, every step in order. */
+/* Rows a weight, below which the job warns (common practice: ten rows
+ * for every weight a network learns). */
+#define NETWORK_ROWS_PER_WEIGHT 10
+
+/* model network: train on every fitted row (its own held-out slice inside),
+ * the fitted rows' estimates and measures, cross-validation by training
+ * each fold, the permutation importance of each input. */
+static rf_status fit_network(const job *j, const design *d, fit *f,
+                             network_progress epoch, void *ctx,
+                             rf_warnings *warn, rf_error *err)
+{
+    size_t n = d->n_fit, p = d->p;
+    network_options *o = &f->net_opt;
+    network_options_init(o);
+    o->n_hidden = (size_t)j->n_hidden;
+    for (size_t l = 0; l < o->n_hidden; l++)
+        o->hidden[l] = (size_t)j->hidden[l];
+    o->classify = d->binary;
+    o->solver = j->solver == SOLVER_LBFGS ? NETWORK_LBFGS
+              : j->solver == SOLVER_ADAM ? NETWORK_ADAM : NETWORK_SOLVER_AUTO;
+    o->ridge = j->ridge;
+    o->rate = j->rate;
+    o->epochs = j->epochs;
+    o->seed = j->seed;
+    o->restarts = j->restarts > 0 ? (size_t)j->restarts : 1;
+    if ((f->y = malloc((n ? n : 1) * sizeof *f->y)) == NULL
+        || (f->fitted = malloc((n ? n : 1) * sizeof *f->fitted)) == NULL
+        || (f->importance = calloc(d->n_inputs ? d->n_inputs : 1,
+                                   sizeof *f->importance)) == NULL)
+        return error_nomem(err, NULL);
+    for (size_t i = 0; i < n; i++)
+        f->y[i] = (double)d->y[i];
+
+    /* cross-validation first: its fold trainings report no progress */
+    rf_status st = cross_validate(j, d, f, warn, err);
+    if (st)
+        return st;
+    o->progress = epoch;
+    o->progress_ctx = ctx;
+    st = network_fit(d->X, f->y, n, p, o, &f->net, err);
+    o->progress = NULL;
+    if (st)
+        return at_model(j, st, err);
+    const network_model *m = f->net;
+    size_t w = network_weights(m);
+    if (n < NETWORK_ROWS_PER_WEIGHT * w
+        && (st = error_warn(warn, NULL, "the network has %zu weights to "
+                            "learn from %zu fitted rows, fewer than %d rows "
+                            "a weight (common practice): it may learn the "
+                            "rows' noise. Fewer hidden units, a `ridge` "
+                            "penalty or more rows are safer; compare its cv "
+                            "measures with a linear or logistic model's",
+                            w, n, NETWORK_ROWS_PER_WEIGHT)))
+        return st;
+    for (size_t i = 0; i < n; i++)
+        f->fitted[i] = network_predict(m, d->X + i * p);
+    if (d->binary) {
+        if ((st = classify_measure(f->y, f->fitted, n, j->threshold, &f->cm,
+                                   err)))
+            return at_model(j, st, err);
+        f->rm.cm = &f->cm;
+    } else {
+        long double sse = 0, sae = 0, sy = 0, tss = 0;
+        for (size_t i = 0; i < n; i++) {
+            long double e = (long double)f->y[i] - f->fitted[i];
+            sse += e * e;
+            sae += fabsl(e);
+            sy += f->y[i];
+        }
+        for (size_t i = 0; i < n; i++)
+            tss += (f->y[i] - sy / n) * (f->y[i] - sy / n);
+        f->rm.rmse = sqrt((double)(sse / n));
+        f->rm.mae = (double)(sae / n);
+        f->rm.r2 = tss > 0 ? (double)(1 - sse / tss) : NAN;
+    }
+    /* the importance of each input as the job names it: a category's
+     * indicator columns move together */
+    size_t ni = d->n_inputs;
+    size_t *first = malloc((ni ? ni : 1) * sizeof *first);
+    size_t *len = malloc((ni ? ni : 1) * sizeof *len);
+    if (first == NULL || len == NULL) {
+        free(first);
+        free(len);
+        return error_nomem(err, NULL);
+    }
+    for (size_t k = 0; k < ni; k++) {
+        first[k] = d->inputs[k].first_term;
+        len[k] = design_input_terms(&d->inputs[k]);
+    }
+    st = network_importance(m, d->X, f->y, n, first, len, ni, j->seed,
+                            f->importance, err);
+    free(first);
+    free(len);
+    if (st)
+        return at_model(j, st, err);
+    f->rm.network = m;
+    f->rm.fitted = f->fitted;
+    f->rm.importance = f->importance;
+    f->rm.classify = d->binary;
+    return RF_OK;
+}
+
 static rf_status fit_model(const job *j, const design *d, fit *f,
+                           network_progress epoch, void *ctx,
                            rf_warnings *warn, rf_error *err)
 {
     rf_status st;
     f->rm.agree_digits = NAN;
     f->rm.ridge = j->ridge;
+    if (j->model == MODEL_NETWORK)
+        return fit_network(j, d, f, epoch, ctx, warn, err);
+    f->rm.classify = d->binary;
     if (j->model == MODEL_LOGISTIC) {
         if ((st = fit_logistic(j, d, f, warn, err)))
             return st;
@@ -721,14 +882,14 @@ static rf_status fit_model(const job *j, const design *d, fit *f,
     return RF_OK;
 }
 
-rf_status fit_job(const job *j, const design *d, fit **out,
-                  rf_warnings *warn, rf_error *err)
+rf_status fit_job(const job *j, const design *d, network_progress epoch,
+                  void *ctx, fit **out, rf_warnings *warn, rf_error *err)
 {
     fit *f = calloc(1, sizeof *f);
     *out = NULL;
     if (f == NULL)
         return error_nomem(err, NULL);
-    rf_status st = fit_model(j, d, f, warn, err);
+    rf_status st = fit_model(j, d, f, epoch, ctx, warn, err);
     if (st) {
         fit_free(f);
         return st;

@@ -18,6 +18,7 @@
 #include "job.h"
 #include "linear.h"
 #include "logistic.h"
+#include "network.h"
 #include "validate.h"
 
 /* Cross-validation, as it was run. */
@@ -41,7 +42,7 @@ typedef struct fit_cv {
     size_t best, chosen;
 } fit_cv;
 
-/* What was fitted. Exactly one of linear and logistic is set; with
+/* What was fitted. Exactly one of linear, logistic and network is set; with
  * solver gradient it carries the gradient's coefficients (set with
  * linear_set_beta or logistic_set_beta) and gradient says how the descent
  * ran. */
@@ -56,8 +57,14 @@ typedef struct fit_result {
     const fit_cv *cv;             /* folds > 0, else NULL */
     double ridge;                    /* the penalty fitted (the job's, or
                                         the one ridge auto chose), or 0 */
-    const diagnose_result *diag;     /* per fitted row */
+    const diagnose_result *diag;     /* per fitted row; NULL (network) */
     const double *vif;               /* linear: per term, else NULL */
+    int classify;                    /* a yes/no target */
+    /* model network (linear and logistic are NULL then) */
+    const network_model *network;
+    const double *fitted;    /* per fitted row: estimate or probability */
+    const double *importance;        /* per design input */
+    double r2, rmse, mae;            /* numeric target, fitted rows */
 } fit_result;
 
 typedef struct fit fit;
@@ -69,8 +76,8 @@ typedef struct fit fit;
  * converge), classification measures, diagnostics. Warnings (dropped
  * terms, near-collinear inputs, folds that could not be fitted) go to
  * warn. *out is new (fit_free), NULL on error. */
-rf_status fit_job(const job *j, const design *d, fit **out,
-                  rf_warnings *warn, rf_error *err);
+rf_status fit_job(const job *j, const design *d, network_progress epoch,
+                  void *ctx, fit **out, rf_warnings *warn, rf_error *err);
 void fit_free(fit *f);  /* accepts NULL */
 
 /* What was fitted, for report_write; valid while f lives. */

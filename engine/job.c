@@ -1035,12 +1035,14 @@ static rf_status parse_line(parser *p, char *s)
  * the first, with its message in msg, or 0 when all apply. */
 static int job_misapplied(const job *j, char *msg, size_t len)
 {
-    if (j->model != MODEL_LOGISTIC && j->positive_line) {
-        snprintf(msg, len, "positive applies to model logistic only");
+    if (j->model == MODEL_LINEAR && j->positive_line) {
+        snprintf(msg, len, "positive applies to yes/no targets: model "
+                 "logistic or network");
         return j->positive_line;
     }
-    if (j->model != MODEL_LOGISTIC && j->threshold_line) {
-        snprintf(msg, len, "threshold applies to model logistic only");
+    if (j->model == MODEL_LINEAR && j->threshold_line) {
+        snprintf(msg, len, "threshold applies to yes/no targets: model "
+                 "logistic or network");
         return j->threshold_line;
     }
     if (j->model != MODEL_NETWORK && j->hidden_line) {
@@ -1086,10 +1088,6 @@ static int job_misapplied(const job *j, char *msg, size_t len)
  */
 static int job_unavailable(const job *j, char *what, size_t len)
 {
-    if (j->model == MODEL_NETWORK) {
-        snprintf(what, len, "model %s", job_model_name(j->model));
-        return j->model_line;
-    }
     if (j->n_reports > 0) {
         snprintf(what, len, "report %s", j->reports[0].kind);
         return j->reports[0].line;

@@ -4,6 +4,7 @@
  * the exit status: 0 done, 1 the job or its data is wrong, 2 the command
  * line is wrong, 3 the system failed. Nothing else lives here.
  */
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -51,6 +52,21 @@ static void show_progress(void *ctx, const char *stage, size_t rows,
                 job, stage, rows, seconds, rows / seconds);
     else
         fprintf(stderr, "rowfit: %s: %s %zu rows\n", job, stage, rows);
+}
+
+/* Training progress on a terminal: one line, rewritten in place every
+ * 25 epochs, cleared by the next stage's line. */
+static void show_epoch(void *ctx, long epoch, double train, double valid)
+{
+    if (epoch % 25 != 0)
+        return;
+    const char *job = ctx;
+    if (isfinite(valid))
+        fprintf(stderr, "\rrowfit: %s: training: epoch %ld, loss %.6g, "
+                "held out %.6g   \r", job, epoch, train, valid);
+    else
+        fprintf(stderr, "\rrowfit: %s: training: epoch %ld, loss %.6g   \r",
+                job, epoch, train);
 }
 
 static void print_error(const rf_error *e)
@@ -135,9 +151,10 @@ int main(int argc, char **argv)
 
     int worst = 0;
     for (int k = 0; k < njobs; k++) {
-        run_options opt = { output, check, force, NULL, NULL };
+        run_options opt = { output, check, force, NULL, NULL, NULL };
         if (!quiet && isatty(STDERR_FILENO)) {
             opt.progress = show_progress;
+            opt.epoch = show_epoch;
             opt.progress_ctx = (void *)jobs[k];
         }
         rf_warnings warn = { 0 };

@@ -320,7 +320,9 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
 {
     const linear_model *m = rm->linear;
     const logistic_model *lm = rm->logistic;
-    const linear_drop *drop = m ? m->drop : lm->drop;
+    const network_model *net = rm->network;
+    const linear_drop *drop = m ? m->drop : lm ? lm->drop : NULL;
+    int cls = rm->classify;
     writer_sheet *s = writer_add_sheet(w, "Estimates", err);
     if (s == NULL)
         return err->status;
@@ -370,14 +372,14 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     if (L.has_id)
         names[L.c_id] = j->id.name;
     names[L.c_target] = j->target.name;
-    names[L.c_est] = m ? "estimate" : "probability";
-    names[L.c_res] = m ? "residual" : "predicted";
+    names[L.c_est] = cls ? "probability" : "estimate";
+    names[L.c_res] = cls ? "predicted" : "residual";
     if (m) {
         names[L.c_low] = "low";
         names[L.c_high] = "high";
     }
     if (rm->cv)
-        names[L.c_cv] = m ? "cv estimate" : "cv probability";
+        names[L.c_cv] = cls ? "cv probability" : "cv estimate";
     names[L.c_status] = "status";
     for (size_t i = 0; i < d->n_inputs; i++)
         names[L.c_input0 + i] = d->inputs[i].name;
@@ -387,15 +389,15 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
     writer_column(s, L.c_row, 8, WFMT_INTEGER);
     if (L.has_id)
         writer_column(s, L.c_id, 12, WFMT_NONE);
-    writer_column(s, L.c_target, 14, m ? WFMT_FIXED2 : WFMT_NONE);
-    writer_column(s, L.c_est, 14, m ? WFMT_FIXED2 : WFMT_FIXED4);
-    writer_column(s, L.c_res, 14, m ? WFMT_FIXED2 : WFMT_NONE);
+    writer_column(s, L.c_target, 14, cls ? WFMT_NONE : WFMT_FIXED2);
+    writer_column(s, L.c_est, 14, cls ? WFMT_FIXED4 : WFMT_FIXED2);
+    writer_column(s, L.c_res, 14, cls ? WFMT_NONE : WFMT_FIXED2);
     if (m) {
         writer_column(s, L.c_low, 14, WFMT_FIXED2);
         writer_column(s, L.c_high, 14, WFMT_FIXED2);
     }
     if (rm->cv)
-        writer_column(s, L.c_cv, 14, m ? WFMT_FIXED2 : WFMT_FIXED4);
+        writer_column(s, L.c_cv, 14, cls ? WFMT_FIXED4 : WFMT_FIXED2);
     writer_column(s, L.c_status, 28, WFMT_NONE);
     for (size_t i = 0; i < d->n_inputs; i++) {
         double wdt = strlen(d->inputs[i].name) + 3.0;
@@ -426,7 +428,7 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         if (L.has_id && idc >= 0)
             write_cell(s, r, L.c_id, t, row->row, (size_t)idc);
         double target = (double)d->target[o];
-        if (lm) {
+        if (cls) {
             /* the class as the data wrote it: 'yes', 1, TRUE */
             if (row->source == SOURCE_DATA && d->target_col >= 0)
                 write_cell(s, r, L.c_target, t, row->row,
@@ -441,15 +443,36 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         const long double *x = design_row_x(d, o);
         if (row->status == ROW_SKIPPED) {
             snprintf(status, sizeof status, "skipped: %s", row->reason);
-        } else if (lm) {
-            double prob = row->status == ROW_FITTED ? lm->prob[row->index]
+        } else if (net && !cls) {
+            /* a network's estimate is a value (the Weights sheet has what
+             * makes it); the residual stays live */
+            double est = row->status == ROW_FITTED ? rm->fitted[row->index]
+                                                   : network_predict(net, x);
+            int blank = 0;
+            writer_number(s, r, L.c_est, est, WFMT_FIXED2, &blank);
+            if (row->status == ROW_FITTED && !blank) {
+                writer_cell_name(r, L.c_target, cell, sizeof cell);
+                writer_cell_name(r, L.c_est, cell2, sizeof cell2);
+                char rf[80];
+                snprintf(rf, sizeof rf, "=%s-%s", cell, cell2);
+                writer_formula(s, r, L.c_res, rf,
+                               (double)d->target[o] - est, WFMT_FIXED2);
+            }
+            snprintf(status, sizeof status, "%s%s",
+                     row->status == ROW_FITTED ? "fitted" : "estimated",
+                     blank ? " (estimate not finite, left blank)" : "");
+        } else if (cls) {
+            double prob = net ? (row->status == ROW_FITTED
+                                 ? rm->fitted[row->index]
+                                 : network_predict(net, x))
+                        : row->status == ROW_FITTED ? lm->prob[row->index]
                                                     : logistic_predict(lm, x);
-            if (estimate_formula(&fb, d, drop, &L, r, 1)) {
+            int blank = !isfinite(prob);
+            if (lm && estimate_formula(&fb, d, drop, &L, r, 1)) {
                 st = error_nomem(err, NULL);
                 goto out;
             }
-            int blank = !isfinite(prob);
-            if (!blank && fb.n <= FORMULA_CHARS_MAX)
+            if (!blank && lm && fb.n <= FORMULA_CHARS_MAX)
                 writer_formula(s, r, L.c_est, fb.s, prob, WFMT_FIXED4);
             else if (!blank)
                 writer_number(s, r, L.c_est, prob, WFMT_FIXED4, NULL);
@@ -500,7 +523,7 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         }
         if (rm->cv && row->status == ROW_FITTED)
             writer_number(s, r, L.c_cv, rm->cv->pred[row->index],
-                          m ? WFMT_FIXED2 : WFMT_FIXED4, NULL);
+                          cls ? WFMT_FIXED4 : WFMT_FIXED2, NULL);
         writer_text(s, r, L.c_status, status, WFMT_NONE);
         for (size_t i = 0; i < d->n_inputs; i++) {
             const design_input *in = &d->inputs[i];
@@ -861,14 +884,14 @@ static void summary_cv(writer_sheet *s, uint32_t *r, const fit_result *rm)
                  "could be fitted (%zu of %zu folds failed: see the "
                  "Validation sheet)", used, cv->failed, cv->k);
         for (int k = 0; k < VALIDATE_MEASURES; k++)
-            srow(s, r, (rm->logistic ? cls : lin)[k], v->pooled[k],
+            srow(s, r, (rm->classify ? cls : lin)[k], v->pooled[k],
                  WFMT_SIG, note);
         return;
     }
     for (int k = 0; k < VALIDATE_MEASURES; k++)
-        srow(s, r, (rm->logistic ? cls : lin)[k], v ? v->pooled[k] : NAN,
+        srow(s, r, (rm->classify ? cls : lin)[k], v ? v->pooled[k] : NAN,
              WFMT_SIG,
-             v ? (rm->logistic ? cls_note : lin_note)[k]
+             v ? (rm->classify ? cls_note : lin_note)[k]
                : "not measured: fewer than two folds could be fitted");
 }
 
@@ -899,6 +922,234 @@ static void confusion_block(writer_sheet *s, uint32_t *r, const design *d,
     (*r)++;
 }
 
+/* Line r (1-based) of the Weights sheet's standardizing block: a header,
+ * then each input unit's design column with its mean and scale, then the
+ * target's. */
+static void weights_std_line(writer_sheet *s, uint32_t r, const design *d,
+                             const network_model *net)
+{
+    size_t k = r - 1;
+    if (k < net->units[0]) {
+        writer_text(s, r, 5, d->term[net->col[k]], WFMT_NONE);
+        writer_number(s, r, 6, net->in_mean[k], WFMT_SIG, NULL);
+        writer_number(s, r, 7, net->in_scale[k], WFMT_SIG, NULL);
+        if (k == 0)
+            writer_text(s, r, 8, "a unit's input is (value - mean) / scale, "
+                        "over the training rows; a unit computes TANH(bias + "
+                        "sum of weight x input)", WFMT_NONE);
+    } else if (k == net->units[0]) {
+        writer_text(s, r, 5, "(target)", WFMT_NONE);
+        writer_number(s, r, 6, net->y_mean, WFMT_SIG, NULL);
+        writer_number(s, r, 7, net->y_scale, WFMT_SIG, NULL);
+        writer_text(s, r, 8, net->classify
+                    ? "yes/no target: the output is 1 / (1 + EXP(-(bias + "
+                      "sum of weight x unit)))"
+                    : "the estimate is mean + scale x (bias + sum of weight "
+                      "x unit)", WFMT_NONE);
+    }
+}
+
+/* Every model's first rows (SUMMARY_COMMON of them). */
+static void summary_common(writer_sheet *s, uint32_t *r, const job *j,
+                           const table *data, const table *score,
+                           const design *d, const char *model_note,
+                           const char *terms_note)
+{
+    size_t nread = table_rows(data) + (score ? table_rows(score) : 0);
+    trow(s, r, "model", job_model_name(j->model), model_note);
+    trow(s, r, "target", j->target.name, NULL);
+    srow(s, r, "rows read", (double)nread, WFMT_INTEGER, NULL);
+    srow(s, r, "rows fitted", (double)d->n_fit, WFMT_INTEGER, NULL);
+    srow(s, r, "rows skipped", (double)d->rows_skipped, WFMT_INTEGER,
+         d->rows_skipped ? "each skipped row's reason is in its Estimates status"
+                         : NULL);
+    srow(s, r, "rows estimated", (double)d->n_est, WFMT_INTEGER,
+         "rows with a blank target, and rows of the score table");
+    srow(s, r, "terms", (double)d->p, WFMT_INTEGER, terms_note);
+}
+
+/* The Summary of a network: the common rows, its measures (those of a
+ * linear or logistic model that a network has), how it trained, the cv
+ * rows, then each input's permutation importance. */
+#define SUMMARY_NET_TRAIN 8
+#define SUMMARY_NET_NUMERIC 3
+#define SUMMARY_NET_CLASSIFY 8
+static rf_status write_summary_network(writer *w, const job *j,
+                                       const table *data, const table *score,
+                                       const design *d, const fit_result *rm,
+                                       rf_error *err)
+{
+    const network_model *net = rm->network;
+    const classify_measures *c = rm->cm;
+    writer_sheet *s = writer_add_sheet(w, "Summary", err);
+    if (s == NULL)
+        return err->status;
+    static const char *const names[] = { "measure", "value", "note" };
+    writer_column(s, 0, 26, WFMT_NONE);
+    writer_column(s, 1, 20, WFMT_SIG);
+    writer_column(s, 2, 80, WFMT_NONE);
+    uint32_t measures = SUMMARY_COMMON + SUMMARY_NET_TRAIN
+        + (rm->classify ? SUMMARY_NET_CLASSIFY : SUMMARY_NET_NUMERIC)
+        + (rm->ridge > 0 ? 1 : 0) + (rm->cv ? SUMMARY_CV : 0);
+    writer_header(s, names, 3, measures);
+    uint32_t r = 1;
+    char note[300], text[80];
+    snprintf(note, sizeof note, "%zu input columns reach the network "
+             "(categories as indicator columns; constant columns, the "
+             "intercept among them, carry nothing)", net->units[0]);
+    summary_common(s, &r, j, data, score, d, rm->classify
+                   ? "multilayer perceptron, tanh units, logistic output, "
+                     "log loss"
+                   : "multilayer perceptron, tanh units, linear output, "
+                     "squared error", note);
+    size_t used = 0;
+    text[0] = '\0';
+    for (size_t l = 0; l + 1 < net->n_layers; l++)
+        used += (size_t)snprintf(text + used, sizeof text - used, "%s%zu",
+                                 l ? ", " : "", net->units[l + 1]);
+    trow(s, &r, "hidden", text, "units per hidden layer");
+    srow(s, &r, "weights", (double)network_weights(net), WFMT_INTEGER,
+         "weights and biases learned");
+    trow(s, &r, "solver", network_solver_str(net->solver),
+         net->solver == NETWORK_LBFGS
+         ? "full-batch L-BFGS (quasi-Newton)" : "mini-batch Adam");
+    srow(s, &r, "epochs", (double)net->epochs, WFMT_INTEGER,
+         net->solver == NETWORK_LBFGS ? "L-BFGS iterations of the kept "
+         "restart" : "epochs of the kept restart");
+    snprintf(note, sizeof note, "%s (cap %ld)", network_stop_str(net->stop),
+             net->epochs_cap);
+    trow(s, &r, "stopped", net->stop == NETWORK_EPOCHS ? "at the cap"
+                           : net->stop == NETWORK_EARLY_STOP ? "early"
+                                                             : "converged",
+         note);
+    srow(s, &r, "training loss", net->train_loss, WFMT_SIG, rm->classify
+         ? "mean log loss on the training rows"
+         : "mean squared error on the training rows, in the target's units "
+           "squared");
+    snprintf(note, sizeof note, "the same on the %zu rows held out for "
+             "early stopping", net->n_holdout);
+    srow(s, &r, "validation loss", net->valid_loss, WFMT_SIG, note);
+    snprintf(note, sizeof note, "starts from different seeds; the kept one "
+             "(number %zu) has the lowest validation loss",
+             net->restart_best + 1);
+    srow(s, &r, "restarts", (double)net->restarts, WFMT_INTEGER, note);
+    if (rm->classify) {
+        snprintf(note, sizeof note, "the event (%zu of the fitted rows; the "
+                 "other value, '%s', %zu)", d->n_positive, d->negative,
+                 d->n_negative);
+        trow(s, &r, "positive class", d->positive, note);
+        srow(s, &r, "accuracy", c->accuracy, WFMT_SIG, "fitted rows, at the "
+             "threshold");
+        srow(s, &r, "precision", c->precision, WFMT_SIG, NULL);
+        srow(s, &r, "recall", c->recall, WFMT_SIG, NULL);
+        srow(s, &r, "auc", c->auc, WFMT_SIG, "area under the ROC curve, "
+             "fitted rows");
+        srow(s, &r, "brier score", c->brier, WFMT_SIG, NULL);
+        srow(s, &r, "log loss", c->logloss, WFMT_SIG, NULL);
+        srow(s, &r, "threshold", c->threshold, WFMT_SIG, "probability at or "
+             "above which a row is predicted positive");
+    } else {
+        srow(s, &r, "r squared", rm->r2, WFMT_SIG, "fitted rows: 1 - RSS / "
+             "sum of squares about the mean");
+        srow(s, &r, "rmse", rm->rmse, WFMT_SIG, "fitted rows");
+        srow(s, &r, "mae", rm->mae, WFMT_SIG, "fitted rows");
+    }
+    if (rm->ridge > 0)
+        srow(s, &r, "ridge", rm->ridge, WFMT_SIG, "weight decay: (ridge / "
+             "2) x the sum of squared weights (not biases), on standardized "
+             "inputs");
+    if (rm->cv)
+        summary_cv(s, &r, rm);
+    assert(r - 1 == measures);
+    r++;
+    writer_text(s, r, 0, "input", WFMT_BOLD);
+    writer_text(s, r, 1, "importance", WFMT_BOLD);
+    writer_text(s, r++, 2, rm->classify
+                ? "increase of the held-out log loss when the input's values "
+                  "are shuffled among the held-out rows (mean of 5 shuffles): "
+                  "what the network relies on, not a causal effect"
+                : "increase of the held-out mean squared error when the "
+                  "input's values are shuffled among the held-out rows "
+                  "(mean of 5 shuffles): what the network relies on, not a "
+                  "causal effect", WFMT_WRAP);
+    for (size_t k = 0; k < d->n_inputs; k++, r++) {
+        writer_text(s, r, 0, d->inputs[k].name, WFMT_NONE);
+        writer_number(s, r, 1, rm->importance[k], WFMT_SIG, NULL);
+    }
+    r++;
+    if (rm->classify) {
+        confusion_block(s, &r, d, c, "fitted rows");
+        r++;
+        trow(s, &r, "caution", "scoring people", CAUTION_PEOPLE);
+    } else {
+        trow(s, &r, "caution", "an estimate is not an appraisal",
+             CAUTION_PRICE);
+    }
+    return writer_status(w, err);
+}
+
+/* The Weights sheet: every weight of the network, layer by layer, and the
+ * standardizing of its inputs and target, so that its estimates can be
+ * recomputed by hand or in a sheet. */
+static rf_status write_weights(writer *w, const design *d,
+                               const fit_result *rm, rf_error *err)
+{
+    const network_model *net = rm->network;
+    writer_sheet *s = writer_add_sheet(w, "Weights", err);
+    if (s == NULL)
+        return err->status;
+    static const char *const names[] = { "layer", "from", "to", "weight" };
+    writer_column(s, 0, 8, WFMT_INTEGER);
+    writer_column(s, 1, 28, WFMT_NONE);
+    writer_column(s, 2, 14, WFMT_NONE);
+    writer_column(s, 3, 16, WFMT_SIG);
+    writer_column(s, 5, 28, WFMT_NONE);
+    writer_column(s, 6, 16, WFMT_SIG);
+    writer_column(s, 7, 16, WFMT_SIG);
+    writer_column(s, 8, 60, WFMT_NONE);
+    size_t rows = 0;
+    for (size_t l = 0; l < net->n_layers; l++)
+        rows += net->units[l + 1] * (net->units[l] + 1);
+    writer_header(s, names, 4, (uint32_t)rows);
+    writer_text(s, 0, 5, "input", WFMT_BOLD);
+    writer_text(s, 0, 6, "mean", WFMT_BOLD);
+    writer_text(s, 0, 7, "scale", WFMT_BOLD);
+    writer_text(s, 0, 8, "note", WFMT_BOLD);
+    /* the standardizing, beside the weights: written with the rows it
+     * sits beside (the sheet is streamed in row order) */
+    size_t std_rows = net->units[0] + 2;
+    uint32_t r = 1;
+    char from[96], to[48];
+    for (size_t l = 0; l < net->n_layers; l++) {
+        size_t nin = net->units[l], nout = net->units[l + 1];
+        for (size_t o = 0; o < nout; o++) {
+            if (l + 1 == net->n_layers)
+                snprintf(to, sizeof to, "output");
+            else
+                snprintf(to, sizeof to, "h%zu.%zu", l + 1, o + 1);
+            for (size_t i = 0; i <= nin; i++, r++) {
+                if (i == nin)
+                    snprintf(from, sizeof from, "bias");
+                else if (l == 0)
+                    snprintf(from, sizeof from, "%s", d->term[net->col[i]]);
+                else
+                    snprintf(from, sizeof from, "h%zu.%zu", l, i + 1);
+                writer_number(s, r, 0, (double)(l + 1), WFMT_INTEGER, NULL);
+                writer_text(s, r, 1, from, WFMT_NONE);
+                writer_text(s, r, 2, to, WFMT_NONE);
+                writer_number(s, r, 3, i == nin ? net->b[l][o]
+                                                : net->W[l][o * nin + i],
+                              WFMT_SIG, NULL);
+                if (r - 1 < std_rows)
+                    weights_std_line(s, r, d, net);
+            }
+        }
+    }
+    for (; r - 1 < std_rows; r++)
+        weights_std_line(s, r, d, net);
+    return writer_status(w, err);
+}
+
 static rf_status write_summary(writer *w, const job *j, const table *data,
                                const table *score, const design *d,
                                const fit_result *rm, rf_error *err)
@@ -920,26 +1171,18 @@ static rf_status write_summary(writer *w, const job *j, const table *data,
     writer_header(s, names, 3, measures);
     uint32_t r = 1;
     char note[300];
-    size_t nread = table_rows(data) + (score ? table_rows(score) : 0);
     size_t rank = m ? m->rank : lm->rank;
     size_t ndropped = d->p - rank;
-    trow(s, &r, "model", job_model_name(j->model),
-         rm->gradient ? (m ? "least squares by gradient descent"
-                           : "maximum likelihood by gradient descent")
-         : m ? "ordinary least squares"
-             : "maximum likelihood by Newton's method (IRLS)");
-    trow(s, &r, "target", j->target.name, NULL);
-    srow(s, &r, "rows read", (double)nread, WFMT_INTEGER, NULL);
-    srow(s, &r, "rows fitted", (double)d->n_fit, WFMT_INTEGER, NULL);
-    srow(s, &r, "rows skipped", (double)d->rows_skipped, WFMT_INTEGER,
-         d->rows_skipped ? "each skipped row's reason is in its Estimates status"
-                         : NULL);
-    srow(s, &r, "rows estimated", (double)d->n_est, WFMT_INTEGER,
-         "rows with a blank target, and rows of the score table");
     snprintf(note, sizeof note, ndropped ? "%zu estimated; %zu dropped (see "
                                            "Coefficients)" : "%zu estimated",
              rank, ndropped);
-    srow(s, &r, "terms", (double)d->p, WFMT_INTEGER, note);
+    summary_common(s, &r, j, data, score, d,
+                   rm->gradient ? (m ? "least squares by gradient descent"
+                                     : "maximum likelihood by gradient "
+                                       "descent")
+                   : m ? "ordinary least squares"
+                       : "maximum likelihood by Newton's method (IRLS)",
+                   note);
     if (m)
         summary_linear(s, &r, d, rm);
     else
@@ -1005,7 +1248,7 @@ static rf_status write_validation(writer *w, const design *d,
     writer_sheet *s = writer_add_sheet(w, "Validation", err);
     if (s == NULL)
         return err->status;
-    int cls = rm->logistic != NULL;
+    int cls = rm->classify;
     const char *names[6] = { "fold", "rows", cls ? "accuracy" : "rmse",
                              cls ? "auc" : "mae",
                              cls ? "log loss" : "r squared", "note" };
@@ -1346,18 +1589,24 @@ rf_status report_write(writer *w, const job *j, const table *data,
                        rf_warnings *warn, rf_error *err)
 {
     rf_status st;
-    assert((rm->linear == NULL) != (rm->logistic == NULL));
+    assert((rm->linear != NULL) + (rm->logistic != NULL)
+           + (rm->network != NULL) == 1);
     if ((st = write_estimates(w, j, data, score, d, rm, warn, err)))
         return st;
-    if ((st = write_coefficients(w, d, rm, err)))
-        return st;
-    if ((st = write_summary(w, j, data, score, d, rm, err)))
-        return st;
+    if (rm->network) {
+        if ((st = write_weights(w, d, rm, err))
+            || (st = write_summary_network(w, j, data, score, d, rm, err)))
+            return st;
+    } else {
+        if ((st = write_coefficients(w, d, rm, err))
+            || (st = write_summary(w, j, data, score, d, rm, err)))
+            return st;
+    }
     if (rm->cv && (st = write_validation(w, d, rm, err)))
         return st;
     if (rm->diag
         && (st = write_diagnostics(w, j, data, score, d, rm, err)))
         return st;
     return write_job(w, j, facts, warn,
-                     rm->logistic ? CAUTION_PEOPLE : CAUTION_PRICE, err);
+                     rm->classify ? CAUTION_PEOPLE : CAUTION_PRICE, err);
 }

@@ -190,7 +190,8 @@ rf_status run_job(const char *path, const run_options *opt, rf_warnings *warn,
     if (opt->check_only)
         goto done;
 
-    if ((st = fit_job(j, d, &f, warn, err)))
+    if ((st = fit_job(j, d, opt->epoch, opt->progress_ctx, &f, warn,
+                      err)))
         goto done;
     stage(opt, "fitted", d->n_fit, &t0);
 

@@ -16,12 +16,18 @@
 typedef void (*run_progress)(void *ctx, const char *stage, size_t rows,
                              double seconds);
 
+/* Called after each epoch of training a network (every restart, every
+ * fold): for a progress line on a terminal. */
+typedef void (*run_epoch)(void *ctx, long epoch, double train_loss,
+                          double valid_loss);
+
 typedef struct run_options {
     const char *output;  /* -o PATH, or NULL for the job's own choice */
     int check_only;      /* `rowfit check`: read and check, fit nothing, write nothing */
     int force;           /* --force */
     run_progress progress;  /* NULL: none */
     void *progress_ctx;
+    run_epoch epoch;        /* NULL: none; gets progress_ctx */
 } run_options;
 
 /* What a run did, for the line main() prints. */

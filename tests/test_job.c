@@ -766,9 +766,9 @@ static void test_job_rejects_directives_that_do_not_apply(void **state)
         {"restarts for linear", BASE "restarts 3\n", 5,
          "restarts applies to model network only"},
         {"positive for linear", BASE "positive yes\n", 5,
-         "positive applies to model logistic only"},
+         "positive applies to yes/no targets: model logistic or network"},
         {"threshold for linear", BASE "threshold 0.4\n", 5,
-         "threshold applies to model logistic only"},
+         "threshold applies to yes/no targets: model logistic or network"},
         {"lbfgs for linear", BASE "solver lbfgs\n", 5,
          "solver lbfgs applies to model network only"},
         {"adam for linear", BASE "solver adam\n", 5,
@@ -791,11 +791,6 @@ static void test_job_rejects_features_not_available_yet(void **state)
 {
     (void)state;
     static const bad_case c[] = {
-        {"network", "data s.csv\ntarget p\ninputs a\nmodel network\n", 4,
-         "model network is not available yet"},
-        {"network with its options", "data s.csv\ntarget p\ninputs a\n"
-         "model network\nhidden 16, 8\nrestarts 3\nsolver adam\nrate 0.01\n"
-         "epochs 200\n", 4, "model network is not available yet"},
         {"report ratio-study", BASE "report ratio-study\n", 5,
          "report ratio-study is not available yet"},
         {"report selection-rates", BASE
