@@ -1045,6 +1045,11 @@ static int job_misapplied(const job *j, char *msg, size_t len)
                  "logistic or network");
         return j->threshold_line;
     }
+    if (j->model == MODEL_NETWORK && j->ridge_auto) {
+        snprintf(msg, len, "ridge auto applies to model linear or logistic: "
+                 "give a network a fixed weight decay, `ridge VALUE`");
+        return j->ridge_line;
+    }
     if (j->model != MODEL_NETWORK && j->hidden_line) {
         snprintf(msg, len, "hidden applies to model network only");
         return j->hidden_line;

@@ -767,6 +767,10 @@ static void test_job_rejects_directives_that_do_not_apply(void **state)
          "restarts applies to model network only"},
         {"positive for linear", BASE "positive yes\n", 5,
          "positive applies to yes/no targets: model logistic or network"},
+        {"ridge auto on a network", "data s.csv\ntarget p\ninputs a\n"
+         "model network\nridge auto\n", 5,
+         "ridge auto applies to model linear or logistic: give a network a "
+         "fixed weight decay, `ridge VALUE`"},
         {"threshold for linear", BASE "threshold 0.4\n", 5,
          "threshold applies to yes/no targets: model logistic or network"},
         {"lbfgs for linear", BASE "solver lbfgs\n", 5,
