@@ -1237,6 +1237,23 @@ static void test_oom_run_logistic_job_reports_every_failure(void **state)
     l.terms = 2;
     l.files = folder_count(f);
     assert_true(oom_sweep("run_job linear leave-one-out", run_run, &l) > 0);
+
+    /* a network, both kinds, with cross-validation: the Weights sheet,
+     * the importance, the fold trainings */
+    c.job = folder_write(f, "applied-net.job",
+                         "job applied-net\ndata applied.csv\ntarget done\n"
+                         "inputs score, years\ncategories region\n"
+                         "model network\nhidden 2\nepochs 20\nfolds 3\n");
+    c.terms = 4;
+    c.warning = "weights to learn from";
+    c.files = folder_count(f);
+    assert_true(oom_sweep("run_job network yes/no", run_run, &c) > 0);
+    l.job = folder_write(f, "score-net.job",
+                         "job score-net\ndata applied.csv\ntarget score\n"
+                         "inputs years\nmodel network\nhidden 2\n"
+                         "epochs 20\nfolds 3\n");
+    l.files = folder_count(f);
+    assert_true(oom_sweep("run_job network numeric", run_run, &l) > 0);
 }
 
 /* ------------------------------------------------------------ grid */
