@@ -244,6 +244,69 @@ done:
     return out;
 }
 
+/* The value of design term k (not the intercept) in sheet row r: the
+ * input's cell, or for a category level EXACT(cell,"level"), which is 1
+ * or 0 (TRUE or FALSE) in arithmetic. */
+static int term_text(strbuf *b, const design *d, const est_layout *L,
+                     uint32_t r, size_t k)
+{
+    char cell[32], col[16];
+    for (size_t i = 0; i < d->n_inputs; i++) {
+        const design_input *in = &d->inputs[i];
+        if (k < in->first_term
+            || k >= in->first_term + design_input_terms(in))
+            continue;
+        col_name((uint16_t)(L->c_input0 + i), col, sizeof col);
+        snprintf(cell, sizeof cell, "%s%u", col, r + 1);
+        if (!in->is_category)
+            return sb_add(b, "%s", cell);
+        /* EXACT, not '=': spreadsheets compare text ignoring case, and
+         * 'North' and 'north' are two levels here */
+        return sb_add(b, "EXACT(%s,", cell)
+               || sb_quoted(b, design_term_level(in, k)) || sb_add(b, ")");
+    }
+    return sb_add(b, "0");
+}
+
+/* A network's estimate or probability for row r as a live formula over
+ * the Weights sheet and the row's cells, for one hidden layer (with more,
+ * each unit of the second layer would repeat the whole first, and the
+ * text would outgrow what spreadsheets accept). The Weights sheet lists
+ * the weights by layer, then output unit, then input unit, the bias last
+ * (see write_weights); the standardizing of input unit k is in row k + 2,
+ * the target's after them. Returns 1 when no formula is written (the
+ * caller writes the value), -1 on no memory. */
+static int network_formula(strbuf *b, const design *d, const est_layout *L,
+                           const network_model *net, uint32_t r)
+{
+    b->n = 0;
+    if (net->n_layers != 2)
+        return 1;
+    size_t in = net->units[0], hid = net->units[1];
+    size_t out_base = hid * (in + 1);   /* the output unit's first row */
+    int err = net->classify ? sb_add(b, "=1/(1+EXP(-(")
+                            : sb_add(b, "=Weights!$G$%zu+Weights!$H$%zu*(",
+                                     in + 2, in + 2);
+    err = err || sb_add(b, "Weights!$D$%zu", out_base + hid + 2);
+    for (size_t h = 0; h < hid && !err; h++) {
+        size_t base = h * (in + 1);
+        err = sb_add(b, "+Weights!$D$%zu*TANH(Weights!$D$%zu",
+                     out_base + h + 2, base + in + 2);
+        for (size_t k = 0; k < in && !err; k++)
+            err = sb_add(b, "+Weights!$D$%zu*(", base + k + 2)
+                  || term_text(b, d, L, r, net->col[k])
+                  || sb_add(b, "-Weights!$G$%zu)/Weights!$H$%zu", k + 2,
+                            k + 2);
+        err = err || sb_add(b, ")");
+        if (b->n > FORMULA_CHARS_MAX)
+            return 1;
+    }
+    err = err || sb_add(b, net->classify ? ")))" : ")");
+    if (err)
+        return -1;
+    return b->n > FORMULA_CHARS_MAX ? 1 : 0;
+}
+
 /* The estimate formula for row r (0-based sheet row), terms in order; for
  * a logistic model the probability 1/(1+EXP(-(x'b))). */
 static int estimate_formula(strbuf *b, const design *d,
@@ -254,7 +317,6 @@ static int estimate_formula(strbuf *b, const design *d,
     if (sb_add(b, logistic ? "=1/(1+EXP(-(" : "="))
         return -1;
     int first = 1;
-    char cell[32], col[16];
     for (size_t k = 0; k < d->p; k++) {
         if (drop[k] != LINEAR_KEPT)
             continue;
@@ -266,25 +328,8 @@ static int estimate_formula(strbuf *b, const design *d,
             return -1;
         if (d->intercept && k == 0)
             continue;
-        /* which input does term k belong to */
-        for (size_t i = 0; i < d->n_inputs; i++) {
-            const design_input *in = &d->inputs[i];
-            if (k < in->first_term
-                || k >= in->first_term + design_input_terms(in))
-                continue;
-            col_name((uint16_t)(L->c_input0 + i), col, sizeof col);
-            snprintf(cell, sizeof cell, "%s%u", col, r + 1);
-            if (!in->is_category) {
-                if (sb_add(b, "*%s", cell))
-                    return -1;
-            } else if (sb_add(b, "*EXACT(%s,", cell)
-                       || sb_quoted(b, design_term_level(in, k))
-                       || sb_add(b, ")")) {
-                /* EXACT, not '=': spreadsheets compare text ignoring
-                 * case, and 'North' and 'north' are two levels here */
-                return -1;
-            }
-        }
+        if (sb_add(b, "*") || term_text(b, d, L, r, k))
+            return -1;
     }
     if (first && sb_add(b, "0"))
         return -1;
@@ -444,12 +489,21 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
         if (row->status == ROW_SKIPPED) {
             snprintf(status, sizeof status, "skipped: %s", row->reason);
         } else if (net && !cls) {
-            /* a network's estimate is a value (the Weights sheet has what
-             * makes it); the residual stays live */
+            /* a live formula over the Weights sheet for one hidden
+             * layer; a value for deeper networks (the Weights sheet still
+             * has what makes it); the residual stays live */
             double est = row->status == ROW_FITTED ? rm->fitted[row->index]
                                                    : network_predict(net, x);
-            int blank = 0;
-            writer_number(s, r, L.c_est, est, WFMT_FIXED2, &blank);
+            int blank = !isfinite(est), nf = network_formula(&fb, d, &L,
+                                                              net, r);
+            if (nf < 0) {
+                st = error_nomem(err, NULL);
+                goto out;
+            }
+            if (!blank && nf == 0)
+                writer_formula(s, r, L.c_est, fb.s, est, WFMT_FIXED2);
+            else
+                writer_number(s, r, L.c_est, est, WFMT_FIXED2, NULL);
             if (row->status == ROW_FITTED && !blank) {
                 writer_cell_name(r, L.c_target, cell, sizeof cell);
                 writer_cell_name(r, L.c_est, cell2, sizeof cell2);
@@ -468,11 +522,13 @@ static rf_status write_estimates(writer *w, const job *j, const table *data,
                         : row->status == ROW_FITTED ? lm->prob[row->index]
                                                     : logistic_predict(lm, x);
             int blank = !isfinite(prob);
-            if (lm && estimate_formula(&fb, d, drop, &L, r, 1)) {
+            int nf = lm ? estimate_formula(&fb, d, drop, &L, r, 1)
+                        : network_formula(&fb, d, &L, net, r);
+            if (nf < 0) {
                 st = error_nomem(err, NULL);
                 goto out;
             }
-            if (!blank && lm && fb.n <= FORMULA_CHARS_MAX)
+            if (!blank && nf == 0 && fb.n <= FORMULA_CHARS_MAX)
                 writer_formula(s, r, L.c_est, fb.s, prob, WFMT_FIXED4);
             else if (!blank)
                 writer_number(s, r, L.c_est, prob, WFMT_FIXED4, NULL);

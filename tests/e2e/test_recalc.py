@@ -400,6 +400,47 @@ def test_skipped_row_stays_blank_after_recalculation():
                 col, i, v)
 
 
+NET_JOB = JOB.replace("job plots", "job plots-net").replace(
+    "model linear", "model network\nhidden 3")
+
+
+@test
+def test_network_estimates_recalculate_from_the_weights_sheet():
+    # A network of one hidden layer writes each estimate as a live formula
+    # over the Weights sheet (TANH, an OpenDocument formula function) and
+    # the row's cells; LibreOffice must recompute rowfit's cached values.
+    tmp = setup()["tmp"]
+    with open(os.path.join(tmp, "plots-net.job"), "w") as f:
+        f.write(NET_JOB)
+    p = rowfit(["plots-net.job"], tmp)
+    assert p.returncode == 0, "rowfit: " + describe(p)
+    src = os.path.join(tmp, "plots-net-results.xlsx")
+    outdir = os.path.join(tmp, "recalc-net")
+    os.mkdir(outdir)
+    canary = os.path.join(tmp, "canary-net.xlsx")
+    assert poison(src, canary) > 0, "no cached formula value to poison"
+    q, secs = run_soffice(find_soffice(), tmp, [canary], outdir)
+    out = os.path.join(outdir, "canary-net.xlsx")
+    assert os.path.exists(out), "soffice wrote nothing: %s" % q.stderr[:300]
+    forms = openpyxl.load_workbook(src, data_only=False)["Estimates"]
+    ours = openpyxl.load_workbook(src, data_only=True)["Estimates"]
+    theirs = openpyxl.load_workbook(out, data_only=True)["Estimates"]
+    head = [c.value for c in forms[1]]
+    col = openpyxl.utils.get_column_letter(head.index("estimate") + 1)
+    cells = [c.coordinate for c in forms[col][1:] if c.data_type == "f"]
+    assert cells and all("TANH(" in forms[c].value for c in cells), \
+        "estimates are not live TANH formulas: %r" % forms[col + "2"].value
+    worst = 0.0
+    for c in cells:
+        a, b = ours[c].value, theirs[c].value
+        assert is_number(a) and is_number(b), "Estimates!%s: %r vs %r" % (c, a, b)
+        d = abs(a - b) / max(abs(a), 1e-300)
+        worst = max(worst, d)
+        assert d <= REL, "Estimates!%s: LibreOffice %r, rowfit %r" % (c, b, a)
+    print("# network: %d estimates recalculated by LibreOffice, largest "
+          "relative difference %.2g (%.1f s)" % (len(cells), worst, secs))
+
+
 if __name__ == "__main__":
     if not find_soffice():
         if os.environ.get("ROWFIT_REQUIRE_SOFFICE") == "1":
