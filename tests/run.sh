@@ -24,7 +24,7 @@ for t in "$@"; do
     "$t" > "$out/$name.log" 2>&1; rc=$?
     count "$name" "$out/$name.log" $rc
 done
-for s in tests/nist/nist.py tests/nist/harder.py tests/e2e/test_e2e.py tests/e2e/test_logistic.py tests/e2e/test_validation.py tests/e2e/demo_truth.py tests/e2e/test_recalc.py tests/e2e/test_formats.py tests/e2e/test_peek.py; do
+for s in tests/nist/nist.py tests/nist/harder.py tests/e2e/test_e2e.py tests/e2e/test_logistic.py tests/e2e/test_validation.py tests/e2e/test_network.py tests/e2e/demo_truth.py tests/e2e/test_recalc.py tests/e2e/test_formats.py tests/e2e/test_peek.py; do
     [ -f "$s" ] || continue
     name=$(basename "$s" .py)
     "$PYTHON" "$s" > "$out/$name.log" 2>&1; rc=$?
