@@ -759,8 +759,19 @@ static rf_status fit_network(const job *j, const design *d, fit *f,
     o->progress_ctx = ctx;
     st = network_fit(d->X, f->y, n, p, o, &f->net, err);
     o->progress = NULL;
+    if (st == RF_EINPUT && j->rate_line && err->where[0] == '\0'
+        && strstr(err->message, "non-finite"))
+        snprintf(err->where, sizeof err->where, "%s:%d", j->file,
+                 j->rate_line);   /* the rate is what to change */
     if (st)
         return at_model(j, st, err);
+    if (j->level_line) {
+        char where[ERROR_WHERE_MAX];
+        snprintf(where, sizeof where, "%s:%d", j->file, j->level_line);
+        if ((st = error_warn(warn, where, "level does not apply to a "
+                             "network, which gives no intervals; ignored")))
+            return st;
+    }
     const network_model *m = f->net;
     size_t w = network_weights(m);
     if (n < NETWORK_ROWS_PER_WEIGHT * w

@@ -349,8 +349,8 @@ def deep_adam_net():
 def test_sheet_order_and_estimates_columns():
     """Contract section 3: Estimates, Weights, Summary, Validation (folds),
     Job; no Coefficients, no Diagnostics. Estimates columns for a number
-    and for a yes/no target; estimate and probability are values, residual
-    and predicted live formulas."""
+    and for a yes/no target; estimate and probability (one hidden layer),
+    residual and predicted are live formulas."""
     h, a = house_net(), applicants_net()
     for run, what in ((h, "house"), (a, "applicants")):
         assert run.wb.sheetnames == SHEETS_CV, "%s: sheets %r" % (what, run.wb.sheetnames)
@@ -380,8 +380,12 @@ def test_sheet_order_and_estimates_columns():
             if st not in n:
                 continue
             n[st] += 1
-            assert r[ie].data_type == "n", "%s row %s: %s is %r, not a number" % (
-                run.path, r[0].row, est, r[ie].value)
+            # one hidden layer: a live formula over the Weights sheet
+            # (TANH); deeper networks write values (engine/report.c
+            # network_formula)
+            assert r[ie].data_type == "f" and "TANH(" in r[ie].value, \
+                "%s row %s: %s is %r, not a live TANH formula" % (
+                    run.path, r[0].row, est, r[ie].value)
             if st == "fitted":
                 assert r[icv].data_type == "n", "%s row %s: %s not a number" % (run.path, r[0].row, cv)
             else:
@@ -869,6 +873,8 @@ def test_non_finite_loss_stops_with_a_message():
     d, p = bad_job("nan", "solver adam\nrate 1e300\nfolds 0\n")
     msg = p.stderr
     assert "d.job:" in msg and "non-finite" in msg and "rate" in msg, "message %r" % msg
+    # the place is the `rate` line (line 6 of d.job), the thing to change
+    assert "d.job:6:" in msg, "message %r does not point at the rate line" % msg
     assert not [f for f in os.listdir(d) if f.endswith(".xlsx") or f.startswith(".")], \
         "files left behind: %r" % os.listdir(d)
 
