@@ -120,9 +120,13 @@ static rf_status fold_fit_network(const design *d, const fit *f,
         memcpy(Xt + t * p, d->X + fs->train[t] * p, p * sizeof *Xt);
         yt[t] = f->y[fs->train[t]];
     }
+    /* the same penalty per row as the full fit (its objective divides the
+     * penalty by the training rows) */
+    network_options o = f->net_opt;
+    o.ridge = f->net_opt.ridge * (double)fs->nt / (double)d->n_fit;
     rf_error e2;
     memset(&e2, 0, sizeof e2);
-    st = network_fit(Xt, yt, fs->nt, p, &f->net_opt, &m, &e2);
+    st = network_fit(Xt, yt, fs->nt, p, &o, &m, &e2);
     if (st == RF_ENOMEM || st == RF_ESYSTEM) {
         *err = e2;
         goto out;
@@ -765,11 +769,19 @@ static rf_status fit_network(const job *j, const design *d, fit *f,
                  j->rate_line);   /* the rate is what to change */
     if (st)
         return at_model(j, st, err);
+    char where[ERROR_WHERE_MAX];
     if (j->level_line) {
-        char where[ERROR_WHERE_MAX];
         snprintf(where, sizeof where, "%s:%d", j->file, j->level_line);
         if ((st = error_warn(warn, where, "level does not apply to a "
                              "network, which gives no intervals; ignored")))
+            return st;
+    }
+    if (j->threshold_line && !d->binary) {
+        snprintf(where, sizeof where, "%s:%d", j->file, j->threshold_line);
+        if ((st = error_warn(warn, where, "threshold applies to a yes/no "
+                             "target, and '%s' is numeric here; ignored "
+                             "(`positive LABEL` makes a network a yes/no "
+                             "model)", j->target.name)))
             return st;
     }
     const network_model *m = f->net;

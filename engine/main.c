@@ -55,17 +55,18 @@ static void show_progress(void *ctx, const char *stage, size_t rows,
 }
 
 /* Training progress on a terminal: one line, rewritten in place every
- * 25 epochs, cleared by the next stage's line. */
+ * 25 steps (Adam epochs or L-BFGS iterations), cleared by the next
+ * stage's line. */
 static void show_epoch(void *ctx, long epoch, double train, double valid)
 {
     if (epoch % 25 != 0)
         return;
     const char *job = ctx;
     if (isfinite(valid))
-        fprintf(stderr, "\rrowfit: %s: training: epoch %ld, loss %.6g, "
+        fprintf(stderr, "\rrowfit: %s: training: step %ld, loss %.6g, "
                 "held out %.6g   \r", job, epoch, train, valid);
     else
-        fprintf(stderr, "\rrowfit: %s: training: epoch %ld, loss %.6g   \r",
+        fprintf(stderr, "\rrowfit: %s: training: step %ld, loss %.6g   \r",
                 job, epoch, train);
 }
 
