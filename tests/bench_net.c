@@ -11,7 +11,8 @@
  * 2 q h (input weights) + 2 h (output weights) + 2 h (hidden deltas):
  * 4 q h + 6 h multiply-adds counted as two operations each, tanh and the
  * solver's own vector work not counted. Nothing is held out, so every
- * epoch is the same work and the epoch count is fixed.
+ * epoch is the same work and the epoch count is fixed. `--solver adam` or
+ * `--solver lbfgs` runs one solver alone (for perf record).
  */
 #include <math.h>
 #include <stdio.h>
@@ -111,11 +112,16 @@ int main(int argc, char **argv)
 {
     size_t n = 100000, q = 20, h = 16;
     long epochs = 20;
+    int first = 0, last = 1;   /* solvers: 0 Adam, 1 L-BFGS */
     for (int a = 1; a + 1 < argc; a += 2) {
         if (strcmp(argv[a], "--rows") == 0)
             n = strtoul(argv[a + 1], NULL, 10);
         else if (strcmp(argv[a], "--epochs") == 0)
             epochs = strtol(argv[a + 1], NULL, 10);
+        else if (strcmp(argv[a], "--solver") == 0) {
+            /* one solver alone, for a profile of it */
+            first = last = strcmp(argv[a + 1], "lbfgs") == 0;
+        }
     }
     gsl_set_error_handler_off();
     size_t p = q + 1;
@@ -145,7 +151,7 @@ int main(int argc, char **argv)
     printf("bench-net: cblas_dgemm 128 x %zu x %zu (the network's forward "
            "product): %.2f GFLOP/s\n", q, h, dgemm_rate_small(q, h));
     double flops_row = 4.0 * (double)(q * h) + 6.0 * (double)h;
-    for (int s = 0; s < 2; s++) {
+    for (int s = first; s <= last; s++) {
         network_options o;
         network_options_init(&o);
         o.hidden[0] = h;
