@@ -13,48 +13,15 @@
 #include "../engine/design.h"
 #include "../engine/job.h"
 #include "../io/table.h"
+#include "tabletest.h"
 
 #define N(a) (sizeof(a) / sizeof((a)[0]))
 #define JOB "t.job"
 
 /* ------------------------------------------------------------ fixtures */
 
-/* A table named file with nc columns and nr rows of cell specs (row-major):
- * "" blank, "#..." a spreadsheet error, text that strtod reads whole a
- * number, anything else text. The header is line 1, row r is line r + 2,
- * as in a CSV file. */
-static table *make_table(const char *file, const char *const *names, size_t nc,
-                         const char *const *cells, size_t nr)
-{
-    rf_error e = {0};
-    table *t = table_create(file, NULL);
-    assert_non_null(t);
-    for (size_t c = 0; c < nc; c++)
-        assert_int_equal(table_add_column(t, names[c], (uint32_t)c, 1, &e),
-                         RF_OK);
-    for (size_t r = 0; r < nr; r++) {
-        assert_int_equal(table_append_row(t, (uint32_t)(r + 2), &e), RF_OK);
-        for (size_t c = 0; c < nc; c++) {
-            const char *s = cells[r * nc + c];
-            char *end;
-            if (s[0] == '\0')
-                continue;
-            if (s[0] == '#') {
-                assert_int_equal(table_set_error(t, c, s, strlen(s), &e), RF_OK);
-                continue;
-            }
-            double v = strtod(s, &end);
-            if (*end == '\0')
-                assert_int_equal(table_set_number(t, c, v, &e), RF_OK);
-            else
-                assert_int_equal(table_set_text(t, c, s, strlen(s), &e), RF_OK);
-        }
-    }
-    return t;
-}
-
 #define TABLE(file, names, cells) \
-    make_table((file), (names), N(names), (cells), N(cells) / N(names))
+    tt_make_table((file), (names), N(names), (cells), N(cells) / N(names))
 
 static job *parse_job(const char *text)
 {

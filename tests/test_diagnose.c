@@ -146,14 +146,6 @@ static void oracle_free(oracle *o)
         free(o->exact[q]);
 }
 
-/* Where tests/oracle/influence_oracle.py wrote its files (ROWFIT_ORACLE_DIR,
- * as set by `make check` and `make unit`). */
-static const char *oracle_dir(void)
-{
-    const char *d = getenv("ROWFIT_ORACLE_DIR");
-    return d && *d ? d : "build/oracle";
-}
-
 static void *grow(void *p, size_t bytes)
 {
     void *q = realloc(p, bytes);
@@ -166,7 +158,7 @@ static void oracle_read(const char *name, oracle *o)
 {
     char path[512], line[4096];
     memset(o, 0, sizeof *o);
-    snprintf(path, sizeof path, "%s/influence-%s-expected.txt", oracle_dir(),
+    snprintf(path, sizeof path, "%s/influence-%s-expected.txt", tu_oracle_dir(),
              name);
     FILE *f = fopen(path, "r");
     if (f == NULL)
@@ -212,7 +204,7 @@ static void oracle_read(const char *name, oracle *o)
     fclose(f);
     assert_int_equal(exact, o->logistic ? 0 : rows);
 
-    snprintf(path, sizeof path, "%s/influence-%s.csv", oracle_dir(), name);
+    snprintf(path, sizeof path, "%s/influence-%s.csv", tu_oracle_dir(), name);
     f = fopen(path, "r");
     if (f == NULL)
         fail_msg("cannot open %s", path);

@@ -21,60 +21,6 @@
  * ask for a little more so a regression shows before it matters. */
 #define DIGITS6 5e-7
 
-/* A small deterministic generator so the data are the same everywhere:
- * splitmix64 (Steele, Lea & Flood, "Fast splittable pseudorandom number
- * generators", OOPSLA 2014) and Box-Muller for normal deviates (Box &
- * Muller, Ann. Math. Statist. 29 (1958) 610). */
-typedef struct rng { uint64_t s; } rng;
-
-static double uniform(rng *r)
-{
-    uint64_t z = (r->s += 0x9E3779B97F4A7C15ULL);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-    z ^= z >> 31;
-    return ((double)(z >> 11) + 0.5) / 9007199254740992.0;  /* (0, 1) */
-}
-
-static double normal(rng *r)
-{
-    double u1 = uniform(r), u2 = uniform(r);
-    return sqrt(-2 * log(u1)) * cos(6.283185307179586 * u2);
-}
-
-/* Solves the k x k system A z = b in place by Gaussian elimination with
- * partial pivoting in long double (Golub & Van Loan, Matrix Computations,
- * 4th ed., sec. 3.4). */
-static void gauss_solve(long double *A, long double *b, size_t k)
-{
-    for (size_t c = 0; c < k; c++) {
-        size_t piv = c;
-        for (size_t r = c + 1; r < k; r++)
-            if (fabsl(A[r * k + c]) > fabsl(A[piv * k + c]))
-                piv = r;
-        for (size_t j = 0; j < k; j++) {
-            long double t = A[c * k + j];
-            A[c * k + j] = A[piv * k + j];
-            A[piv * k + j] = t;
-        }
-        long double t = b[c];
-        b[c] = b[piv];
-        b[piv] = t;
-        for (size_t r = c + 1; r < k; r++) {
-            long double f = A[r * k + c] / A[c * k + c];
-            for (size_t j = c; j < k; j++)
-                A[r * k + j] -= f * A[c * k + j];
-            b[r] -= f * b[c];
-        }
-    }
-    for (size_t c = k; c-- > 0;) {
-        long double s = b[c];
-        for (size_t j = c + 1; j < k; j++)
-            s -= A[c * k + j] * b[j];
-        b[c] = s / A[c * k + c];
-    }
-}
-
 /* A design like the demo's house sales (workbooks/house-sales.csv): an
  * intercept, living area (m2), lot area, bedrooms (tied to the area),
  * bathrooms, age (years), garage places and three district indicators, so
@@ -83,16 +29,16 @@ static void gauss_solve(long double *A, long double *b, size_t k)
 static void house_design(size_t n, long double *X, double *y,
                          long double *yl, uint64_t seed)
 {
-    rng r = { seed };
+    tu_rng r = { seed };
     for (size_t i = 0; i < n; i++) {
         long double *x = X + i * H_P;
-        double area = 140 + 38 * normal(&r);
-        double lot = 420 + 2.1 * (area - 140) + 130 * normal(&r);
-        double beds = floor(1.2 + area / 45 + 0.6 * normal(&r));
-        double baths = 1 + 0.5 * floor(area / 60 + 0.8 * uniform(&r) * 2);
-        double age = floor(60 * uniform(&r));
-        double garage = floor(3 * uniform(&r));
-        double u = uniform(&r);
+        double area = 140 + 38 * tu_normal(&r);
+        double lot = 420 + 2.1 * (area - 140) + 130 * tu_normal(&r);
+        double beds = floor(1.2 + area / 45 + 0.6 * tu_normal(&r));
+        double baths = 1 + 0.5 * floor(area / 60 + 0.8 * tu_uniform(&r) * 2);
+        double age = floor(60 * tu_uniform(&r));
+        double garage = floor(3 * tu_uniform(&r));
+        double u = tu_uniform(&r);
         x[0] = 1;
         x[1] = area;
         x[2] = lot;
@@ -106,7 +52,7 @@ static void house_design(size_t n, long double *X, double *y,
         double price = 58213.7 + 1467.3 * area + 17.94 * lot - 4286.1 * beds
                        + 8871.5 * baths - 659.2 * age + 7415.8 * garage
                        - 30288.4 * x[7] - 14702.6 * x[8] + 22695.3 * x[9]
-                       + 21000 * normal(&r);
+                       + 21000 * tu_normal(&r);
         y[i] = round(price);
         if (yl != NULL)
             yl[i] = y[i];
@@ -193,19 +139,19 @@ static const double a_beta[A_P] = { -7.315, 0.0842, 0.1837, 0.6624, 0.4791 };
 static void applicant_design(size_t n, long double *X, double *y,
                              uint64_t seed)
 {
-    rng r = { seed };
+    tu_rng r = { seed };
     for (size_t i = 0; i < n; i++) {
         long double *x = X + i * A_P;
-        double score = 62 + 11.5 * normal(&r);
+        double score = 62 + 11.5 * tu_normal(&r);
         x[0] = 1;
         x[1] = score;
-        x[2] = fmax(0, floor(2 + 0.12 * (score - 62) + 3.5 * uniform(&r) * 2));
-        x[3] = uniform(&r) < 0.35;
-        x[4] = 1 + floor(5 * uniform(&r));
+        x[2] = fmax(0, floor(2 + 0.12 * (score - 62) + 3.5 * tu_uniform(&r) * 2));
+        x[3] = tu_uniform(&r) < 0.35;
+        x[4] = 1 + floor(5 * tu_uniform(&r));
         double eta = 0;
         for (size_t j = 0; j < A_P; j++)
             eta += a_beta[j] * (double)x[j];
-        y[i] = uniform(&r) < 1 / (1 + exp(-eta));
+        y[i] = tu_uniform(&r) < 1 / (1 + exp(-eta));
     }
 }
 
@@ -232,7 +178,7 @@ static void newton_logistic(const long double *X, const double *y, size_t n,
                     H[j * p + k] += w * x[j] * x[k];
             }
         }
-        gauss_solve(H, gr, p);
+        tu_gauss_solve(H, gr, p);
         for (size_t j = 0; j < p; j++)
             b[j] += gr[j];
     }
@@ -360,7 +306,7 @@ static void test_gradient_linear_ridge_matches_normal_equations(void **state)
         }
     for (size_t j = 1; j < H_P; j++)
         A[j * H_P + j] += lambda / n;
-    gauss_solve(A, b, H_P);
+    tu_gauss_solve(A, b, H_P);
 
     gradient_model *g = fit_ok(X, y, n, H_P, 1, 0, lambda, 0, 0);
     assert_int_equal(g->converged, 1);
@@ -420,7 +366,7 @@ static void test_gradient_logistic_ridge_matches_penalized_newton(void **state)
             gr[j] -= lambda / n * gam[j];
             H[j * A_P + j] += lambda / n;
         }
-        gauss_solve(H, gr, A_P);
+        tu_gauss_solve(H, gr, A_P);
         for (size_t j = 0; j < A_P; j++)
             gam[j] += gr[j];
     }
@@ -448,12 +394,12 @@ static void test_gradient_default_rate_is_inverse_lipschitz(void **state)
     const size_t n = 400;
     long double X[400 * 3];
     double y[400];
-    rng r = { 5 };
+    tu_rng r = { 5 };
     for (size_t i = 0; i < n; i++) {
         X[i * 3] = 1;
-        X[i * 3 + 1] = 3.7 + 2.2 * normal(&r);
-        X[i * 3 + 2] = 0.4 * X[i * 3 + 1] + 1.3 * normal(&r);
-        y[i] = uniform(&r) < 0.5;
+        X[i * 3 + 1] = 3.7 + 2.2 * tu_normal(&r);
+        X[i * 3 + 2] = 0.4 * X[i * 3 + 1] + 1.3 * tu_normal(&r);
+        y[i] = tu_uniform(&r) < 0.5;
     }
     long double Z[400 * 3], mean[3], sd[3], rho = 0;
     standardize(X, n, 3, Z, mean, sd);
@@ -567,15 +513,15 @@ static void test_gradient_without_intercept_matches_exact_solver(void **state)
     assert_non_null(X);
     assert_non_null(yl);
     assert_non_null(y);
-    rng r = { 11 };
+    tu_rng r = { 11 };
     for (size_t i = 0; i < n; i++) {
         long double *x = X + i * p;
         x[0] = 2.5;                          /* constant, kept */
-        x[1] = 30 + 9 * normal(&r);
-        x[2] = 0.02 * x[1] + 0.3 * normal(&r);
-        x[3] = uniform(&r) < 0.4;
+        x[1] = 30 + 9 * tu_normal(&r);
+        x[2] = 0.02 * x[1] + 0.3 * tu_normal(&r);
+        x[3] = tu_uniform(&r) < 0.4;
         y[i] = 1.73 * 2.5 + 0.91 * (double)x[1] - 4.4 * (double)x[2]
-               + 6.2 * (double)x[3] + 1.9 * normal(&r);
+               + 6.2 * (double)x[3] + 1.9 * tu_normal(&r);
         yl[i] = y[i];
     }
     linear_model *lm = NULL;
@@ -604,11 +550,11 @@ static void test_gradient_exact_fit_converges(void **state)
     enum { n = 40, p = 3 };
     long double X[n * p];
     double y[n];
-    rng r = { 2024 };
+    tu_rng r = { 2024 };
     for (size_t i = 0; i < n; i++) {
         X[i * p] = 1;
-        X[i * p + 1] = 12.5 + 3.1 * normal(&r);
-        X[i * p + 2] = 0.3 * X[i * p + 1] + normal(&r);
+        X[i * p + 1] = 12.5 + 3.1 * tu_normal(&r);
+        X[i * p + 2] = 0.3 * X[i * p + 1] + tu_normal(&r);
         y[i] = (double)(4.75 - 1.5 * X[i * p + 1] + 2.25 * X[i * p + 2]);
     }
     gradient_model *g = fit_ok(X, y, n, p, 1, 0, 0, 0, 0);

@@ -55,41 +55,6 @@ static void drop_column(const long double *X, size_t n, size_t p, size_t drop,
                 out[i * (p - 1) + c++] = X[i * p + j];
 }
 
-/* Solves the k x k system A z = b in place by Gaussian elimination with
- * partial pivoting in long double (Golub & Van Loan, Matrix Computations,
- * 4th ed., sec. 3.4). Only for the small well-conditioned checks here. */
-static void gauss_solve(long double *A, long double *b, size_t k)
-{
-    for (size_t c = 0; c < k; c++) {
-        size_t piv = c;
-        for (size_t r = c + 1; r < k; r++)
-            if (fabsl(A[r * k + c]) > fabsl(A[piv * k + c]))
-                piv = r;
-        if (piv != c) {
-            for (size_t j = 0; j < k; j++) {
-                long double t = A[c * k + j];
-                A[c * k + j] = A[piv * k + j];
-                A[piv * k + j] = t;
-            }
-            long double t = b[c];
-            b[c] = b[piv];
-            b[piv] = t;
-        }
-        for (size_t r = c + 1; r < k; r++) {
-            long double f = A[r * k + c] / A[c * k + c];
-            for (size_t j = c; j < k; j++)
-                A[r * k + j] -= f * A[c * k + j];
-            b[r] -= f * b[c];
-        }
-    }
-    for (size_t c = k; c-- > 0;) {
-        long double s = b[c];
-        for (size_t j = c + 1; j < k; j++)
-            s -= A[c * k + j] * b[j];
-        b[c] = s / A[c * k + c];
-    }
-}
-
 /* X'X (p x p) of X (n x p). */
 static void normal_matrix(const long double *X, size_t n, size_t p,
                           long double *A)
@@ -533,7 +498,7 @@ static void test_linear_prediction_interval_uses_leverage(void **state)
         for (size_t i = 0; i < W_N; i++)
             b[a] += X[i * W_P + a] * y[i];
     }
-    gauss_solve(A, b, W_P);
+    tu_gauss_solve(A, b, W_P);
     for (size_t j = 0; j < W_P; j++)
         assert_close(m->beta[j], (double)b[j], 1e-11, 0);
 
@@ -548,7 +513,7 @@ static void test_linear_prediction_interval_uses_leverage(void **state)
         long double z[W_P];
         memcpy(z, xi, sizeof z);
         normal_matrix(X, W_N, W_P, A);
-        gauss_solve(A, z, W_P);
+        tu_gauss_solve(A, z, W_P);
         long double h = 0;
         for (size_t a = 0; a < W_P; a++)
             h += xi[a] * z[a];
@@ -571,7 +536,7 @@ static void test_linear_prediction_interval_uses_leverage(void **state)
         long double e[W_P] = { 0 };
         e[j] = 1;
         normal_matrix(X, W_N, W_P, A);
-        gauss_solve(A, e, W_P);
+        tu_gauss_solve(A, e, W_P);
         assert_close(m->se[j], s * sqrt((double)e[j]), 1e-10, 0);
     }
     linear_free(m);

@@ -38,22 +38,13 @@ static void dataset_free(dataset *d)
     free(d->y);
 }
 
-/* Where tests/oracle/logit_oracle.py wrote the datasets and statsmodels'
- * answers: `make check` runs it into $(BUILD)/oracle and passes the folder
- * in ROWFIT_ORACLE_DIR. */
-static const char *oracle_dir(void)
-{
-    const char *d = getenv("ROWFIT_ORACLE_DIR");
-    return d && *d ? d : "build/oracle";
-}
-
 /* Reads ORACLE_DIR/NAME.csv (inputs, then the 0/1 target) and
  * NAME-expected.txt. */
 static void dataset_read(const char *name, dataset *d)
 {
     char path[256], line[4096];
     memset(d, 0, sizeof *d);
-    snprintf(path, sizeof path, "%s/%s.csv", oracle_dir(), name);
+    snprintf(path, sizeof path, "%s/%s.csv", tu_oracle_dir(), name);
     FILE *f = fopen(path, "r");
     if (f == NULL)
         fail_msg("cannot open %s (run from the top folder)", path);
@@ -82,7 +73,7 @@ static void dataset_read(const char *name, dataset *d)
         d->n++;
     }
     fclose(f);
-    snprintf(path, sizeof path, "%s/%s-expected.txt", oracle_dir(), name);
+    snprintf(path, sizeof path, "%s/%s-expected.txt", tu_oracle_dir(), name);
     f = fopen(path, "r");
     if (f == NULL)
         fail_msg("cannot open %s", path);

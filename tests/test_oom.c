@@ -61,6 +61,7 @@
 #include "../io/reader.h"
 #include "../io/table.h"
 #include "../io/xls.h"
+#include "tabletest.h"
 
 #define N(a) (sizeof(a) / sizeof((a)[0]))
 
@@ -364,35 +365,6 @@ static int folder_teardown(void **state)
     return 0;
 }
 
-/* A table built cell by cell: "" blank, text strtod reads whole a number,
- * anything else text; header on line 1, row r on line r + 2. */
-static table *make_table(const char *file, const char *const *names,
-                         size_t nc, const char *const *cells, size_t nr)
-{
-    rf_error e = {0};
-    table *t = table_create(file, NULL);
-    assert_non_null(t);
-    for (size_t c = 0; c < nc; c++)
-        assert_int_equal(table_add_column(t, names[c], (uint32_t)c, 1, &e),
-                         RF_OK);
-    for (size_t r = 0; r < nr; r++) {
-        assert_int_equal(table_append_row(t, (uint32_t)(r + 2), &e), RF_OK);
-        for (size_t c = 0; c < nc; c++) {
-            const char *s = cells[r * nc + c];
-            char *end;
-            if (s[0] == '\0')
-                continue;
-            double v = strtod(s, &end);
-            if (*end == '\0')
-                assert_int_equal(table_set_number(t, c, v, &e), RF_OK);
-            else
-                assert_int_equal(table_set_text(t, c, s, strlen(s), &e),
-                                 RF_OK);
-        }
-    }
-    return t;
-}
-
 /* ------------------------------------------------------------ csv_read */
 
 /* A byte-order mark, CRLF line ends, quoted fields with the delimiter, a
@@ -662,10 +634,10 @@ static int design_setup(void **state)
     if (c == NULL)
         return -1;
     *state = c;
-    c->data = make_table("sales.csv", names, N(names), cells,
-                         N(cells) / N(names));
-    c->score = make_table("listings.csv", snames, N(snames), scells,
-                          N(scells) / N(snames));
+    c->data = tt_make_table("sales.csv", names, N(names), cells,
+                            N(cells) / N(names));
+    c->score = tt_make_table("listings.csv", snames, N(snames), scells,
+                             N(scells) / N(snames));
     if (job_parse("data sales.csv\nscore listings.csv\ntarget price\n"
                   "derive age = 2026 - built\ninputs area, age\n"
                   "categories district, roof\nid id\nmodel linear\n",

@@ -21,60 +21,6 @@
 #include "../engine/linear.h"
 #include "../engine/ridge.h"
 
-/* A small deterministic generator so the data are the same everywhere:
- * splitmix64 (Steele, Lea & Flood, "Fast splittable pseudorandom number
- * generators", OOPSLA 2014) and Box-Muller for normal deviates (Box &
- * Muller, Ann. Math. Statist. 29 (1958) 610). */
-typedef struct rng { uint64_t s; } rng;
-
-static double uniform(rng *r)
-{
-    uint64_t z = (r->s += 0x9E3779B97F4A7C15ULL);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-    z ^= z >> 31;
-    return ((double)(z >> 11) + 0.5) / 9007199254740992.0;  /* (0, 1) */
-}
-
-static double normal(rng *r)
-{
-    double u1 = uniform(r), u2 = uniform(r);
-    return sqrt(-2 * log(u1)) * cos(6.283185307179586 * u2);
-}
-
-/* Solves the k x k system A z = b in place by Gaussian elimination with
- * partial pivoting in long double (Golub & Van Loan, Matrix Computations,
- * 4th ed., sec. 3.4). */
-static void gauss_solve(long double *A, long double *b, size_t k)
-{
-    for (size_t c = 0; c < k; c++) {
-        size_t piv = c;
-        for (size_t r = c + 1; r < k; r++)
-            if (fabsl(A[r * k + c]) > fabsl(A[piv * k + c]))
-                piv = r;
-        for (size_t j = 0; j < k; j++) {
-            long double t = A[c * k + j];
-            A[c * k + j] = A[piv * k + j];
-            A[piv * k + j] = t;
-        }
-        long double t = b[c];
-        b[c] = b[piv];
-        b[piv] = t;
-        for (size_t r = c + 1; r < k; r++) {
-            long double f = A[r * k + c] / A[c * k + c];
-            for (size_t j = c; j < k; j++)
-                A[r * k + j] -= f * A[c * k + j];
-            b[r] -= f * b[c];
-        }
-    }
-    for (size_t c = k; c-- > 0;) {
-        long double s = b[c];
-        for (size_t j = c + 1; j < k; j++)
-            s -= A[c * k + j] * b[j];
-        b[c] = s / A[c * k + c];
-    }
-}
-
 /* An invented greenhouse trial: the yield of a tomato bed (kg) from an
  * intercept, water (litres a day), light (hours), temperature (deg C), pot
  * size (litres, tied to the water given) and fertiliser (g a week), so the
@@ -84,15 +30,15 @@ static void gauss_solve(long double *A, long double *b, size_t k)
 static void greenhouse(size_t n, int intercept, long double *X,
                        long double *y, uint64_t seed)
 {
-    rng r = { seed };
+    tu_rng r = { seed };
     size_t p = intercept ? G_P : G_P - 1, o = intercept ? 1 : 0;
     for (size_t i = 0; i < n; i++) {
         long double *x = X + i * p;
-        double water = 2.5 + 0.6 * normal(&r);
-        double light = 11 + 1.5 * normal(&r);
-        double temp = 22 + 3 * normal(&r);
-        double pot = 4 * water + 1.9 + 1.3 * normal(&r);
-        double fert = floor(40 * uniform(&r)) + 0.25;
+        double water = 2.5 + 0.6 * tu_normal(&r);
+        double light = 11 + 1.5 * tu_normal(&r);
+        double temp = 22 + 3 * tu_normal(&r);
+        double pot = 4 * water + 1.9 + 1.3 * tu_normal(&r);
+        double fert = floor(40 * tu_uniform(&r)) + 0.25;
         if (intercept)
             x[0] = 1;
         x[o + 0] = water;
@@ -101,7 +47,7 @@ static void greenhouse(size_t n, int intercept, long double *X,
         x[o + 3] = pot;
         x[o + 4] = fert;
         y[i] = 3.125 + 1.85 * water + 0.42 * light - 0.093 * temp
-               + 0.31 * pot + 0.0275 * fert + 0.8 * normal(&r);
+               + 0.31 * pot + 0.0275 * fert + 0.8 * tu_normal(&r);
     }
 }
 
@@ -183,7 +129,7 @@ static void normal_equations(const long double *X, const long double *y,
         long double s = spread(X, n, p, col[a], intercept, NULL);
         A[a * q + a] += lambda * s * s;
     }
-    gauss_solve(A, c, q);
+    tu_gauss_solve(A, c, q);
     for (size_t j = 0; j < p; j++)
         b[j] = NAN;
     for (size_t a = 0; a < q; a++)
@@ -229,17 +175,17 @@ static void test_ridge_fit_matches_gradient_descent(void **state)
     const size_t n = 60;
     long double X[60 * 4], y[60];
     double yd[60];
-    rng r = { 2385 };
+    tu_rng r = { 2385 };
     /* nearly uncorrelated inputs of different units, so descent converges
      * to the last digits (invented: bed yields from three treatments) */
     for (size_t i = 0; i < n; i++) {
-        double a = 1.5 + 0.4 * normal(&r), b = 30 + 7 * normal(&r);
-        double c = floor(6 * uniform(&r));
+        double a = 1.5 + 0.4 * tu_normal(&r), b = 30 + 7 * tu_normal(&r);
+        double c = floor(6 * tu_uniform(&r));
         X[i * 4 + 0] = 1;
         X[i * 4 + 1] = a;
         X[i * 4 + 2] = b;
         X[i * 4 + 3] = c;
-        y[i] = 4.75 + 2.2 * a - 0.061 * b + 0.38 * c + 0.5 * normal(&r);
+        y[i] = 4.75 + 2.2 * a - 0.061 * b + 0.38 * c + 0.5 * tu_normal(&r);
         yd[i] = (double)y[i];
     }
     static const double lambdas[] = { 0, 3.7, 61.5 };
@@ -662,7 +608,7 @@ static void test_ridge_df_is_trace_of_hat_matrix(void **state)
             }
             for (size_t a = 0; a < p; a++)
                 col[a] = G[a * p + c];
-            gauss_solve(A, col, p);
+            tu_gauss_solve(A, col, p);
             tr += col[c];
         }
         double df = ridge_path_df(r, grid[k]);
@@ -682,13 +628,13 @@ static void test_ridge_shares_between_nearly_equal_columns(void **state)
     (void)state;
     const size_t n = 300, p = 3;
     long double X[300 * 3], y[300];
-    rng r = { 6502 };
+    tu_rng r = { 6502 };
     for (size_t i = 0; i < n; i++) {
-        double t = 20 + 4 * normal(&r);
+        double t = 20 + 4 * tu_normal(&r);
         X[i * p + 0] = 1;
         X[i * p + 1] = t;
-        X[i * p + 2] = t + 1e-5 * normal(&r);
-        y[i] = 7.5 + 0.9 * t + 1.5 * normal(&r);
+        X[i * p + 2] = t + 1e-5 * tu_normal(&r);
+        y[i] = 7.5 + 0.9 * t + 1.5 * tu_normal(&r);
     }
     linear_model *m = NULL;
     rf_error e = {0};
@@ -722,13 +668,13 @@ static void test_ridge_exactly_collinear_columns(void **state)
     (void)state;
     const size_t n = 100, p = 3;
     long double X[100 * 3], y[100];
-    rng r = { 8080 };
+    tu_rng r = { 8080 };
     for (size_t i = 0; i < n; i++) {
-        double t = 5 + normal(&r);
+        double t = 5 + tu_normal(&r);
         X[i * p + 0] = 1;
         X[i * p + 1] = t;
         X[i * p + 2] = t;
-        y[i] = 2 + 3 * t + 0.25 * normal(&r);
+        y[i] = 2 + 3 * t + 0.25 * tu_normal(&r);
     }
     double a[3] = { 0, 0, 0 };
     rf_error e = {0};

@@ -4,9 +4,12 @@ Reads the result workbook with openpyxl (Debian's python3-openpyxl, used
 only as an independent reader of the .xlsx that rowfit writes), runs the
 rowfit binary named by $ROWFIT (default ./rowfit), and offers a tiny test
 runner that prints `PASS name` / `FAIL name: why` and a closing line of the
-form `N passed, M failed`.
+form `N passed, M failed`. Also the small helpers that more than one suite
+uses (scratch folders, job text, number checks, the statsmodels oracle, the
+AUC by pairs, the suites' main), each defined once here.
 """
 import os
+import shutil
 import subprocess
 import sys
 import time
@@ -35,6 +38,7 @@ import openpyxl  # noqa: E402
 HERE = os.path.dirname(os.path.abspath(__file__))
 REPO = os.path.dirname(os.path.dirname(HERE))
 ROWFIT = os.path.abspath(os.environ.get("ROWFIT", "./rowfit"))
+WB = os.path.join(REPO, "workbooks")
 
 
 def rowfit(args, cwd, timeout=60):
@@ -45,6 +49,18 @@ def rowfit(args, cwd, timeout=60):
 
 def describe(p):
     return "exit %d, stderr %r" % (p.returncode, p.stderr.strip()[:400])
+
+
+def run_job(d, job, out="result.xlsx", expect=0):
+    """Runs `rowfit -q -o out --force job` in folder d and checks its exit
+    status is expect, and on 0 that the workbook was written. Returns the
+    CompletedProcess and the workbook's path."""
+    path = os.path.join(d, out)
+    proc = rowfit(["-q", "-o", out, "--force", job], d)
+    assert proc.returncode == expect, "rowfit %s: %s" % (job, describe(proc))
+    if expect == 0:
+        assert os.path.exists(path), "%s: no workbook written" % job
+    return proc, path
 
 
 def load(path):
@@ -71,8 +87,93 @@ def records(wb, sheet):
     return [dict(zip(head, r)) for r in rows]
 
 
+def summary_measures(wb):
+    """measure -> value of a workbook's Summary sheet (the measures block,
+    above the first blank row; read wb with data_only=True)."""
+    out = {}
+    for row in list(wb["Summary"].iter_rows(values_only=True))[1:]:
+        if row[0] is None:
+            break
+        assert row[0] not in out, "Summary measure %r twice" % row[0]
+        out[row[0]] = row[1]
+    return out
+
+
+def need_numpy():
+    """numpy (Debian's python3-numpy), or a failed run that says so."""
+    try:
+        import numpy
+    except ImportError:  # pragma: no cover
+        print("FAIL numpy_installed: needs python3-numpy (Debian's /usr/bin/python3)")
+        print("0 passed, 1 failed")
+        sys.exit(1)
+    return numpy
+
+
 def value(cell):
     return None if cell is None else cell.value
+
+
+def oracle():
+    """statsmodels (python3-statsmodels) and scipy.stats, test oracles only."""
+    try:
+        import statsmodels.api as sm
+        from scipy import stats
+    except ImportError as e:
+        raise AssertionError("needs python3-statsmodels and python3-scipy: %s" % e)
+    return sm, stats
+
+
+def make_dir(tmp, name, files=None, copy=()):
+    """A fresh folder tmp/name with the given text files (name -> text) and
+    copies of files from workbooks/."""
+    d = os.path.join(tmp, name)
+    os.makedirs(d)
+    for fname, text in (files or {}).items():
+        with open(os.path.join(d, fname), "w", newline="") as f:
+            f.write(text)
+    for fname in copy:
+        shutil.copy(os.path.join(WB, fname), d)
+    return d
+
+
+def snapshot(d):
+    """Every file under d with its size and modification time."""
+    out = {}
+    for root, _, files in os.walk(d):
+        for f in files:
+            st = os.stat(os.path.join(root, f))
+            out[os.path.relpath(os.path.join(root, f), d)] = (st.st_size, st.st_mtime_ns)
+    return out
+
+
+def strip_job(path, add=()):
+    """A job file's directives without comments, plus extra lines."""
+    with open(path) as f:
+        lines = [ln for ln in f.read().splitlines()
+                 if ln.strip() and not ln.lstrip().startswith("#")]
+    return "\n".join(lines + list(add)) + "\n"
+
+
+def is_num(v):
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def rel_err(a, b):
+    return abs(a - b) / max(abs(b), 1e-300)
+
+
+def mann_whitney_auc(p, y):
+    """AUC as the Mann-Whitney U / (n1 n0) by counting every (positive,
+    negative) pair, ties one half (docs/workbook.md "auc"; Mann & Whitney,
+    Ann. Math. Statist. 18 (1947) 50; Hanley & McNeil 1982); nan when a
+    class is empty. p and y are numpy arrays, y of 0 and 1."""
+    pos, neg = p[y == 1], p[y == 0]
+    if len(pos) == 0 or len(neg) == 0:
+        return float("nan")
+    gt = (pos[:, None] > neg[None, :]).sum()
+    eq = (pos[:, None] == neg[None, :]).sum()
+    return (gt + 0.5 * eq) / (len(pos) * len(neg))
 
 
 def close(a, b, rel=1e-9, scale=0.0):
@@ -117,3 +218,20 @@ class Runner:
         print("(%.1f s)" % (time.time() - start))
         print("%d passed, %d failed" % (passed, failed))
         return 1 if failed or not passed else 0
+
+
+def main(runner, tmp):
+    """A suite's main: refuses without the rowfit binary, runs the tests
+    named on the command line (all without names) and removes the scratch
+    folder tmp unless ROWFIT_KEEP_TMP=1. Exits with the runner's status."""
+    name = os.path.basename(sys.argv[0])
+    if not os.access(ROWFIT, os.X_OK):
+        print("%s: no rowfit at %s (set ROWFIT)" % (name, ROWFIT))
+        print("0 passed, 1 failed")
+        sys.exit(1)
+    try:
+        rc = runner.run(sys.argv[1:])
+    finally:
+        if os.environ.get("ROWFIT_KEEP_TMP") != "1":
+            shutil.rmtree(tmp, ignore_errors=True)
+    sys.exit(rc)

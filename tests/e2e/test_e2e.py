@@ -17,6 +17,7 @@ tests/bad/. Comment lines in the job say what must happen:
                    place NAME:LINE (or a cell, ...]!D17)
 and nothing may be written.
 
+ROWFIT_KEEP_TMP=1 keeps the temporary folder.
 Usage: ROWFIT=./rowfit python3 tests/e2e/test_e2e.py [NAME-FRAGMENT...]
 Prints PASS/FAIL per test and `N passed, M failed`; exits 1 on a failure.
 """
@@ -32,8 +33,8 @@ from fractions import Fraction
 
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from common import (REPO, ROWFIT, Runner, close, describe, load,  # noqa: E402
-                    records, rowfit, table, value)
+from common import (REPO, Runner, close, describe, load,  # noqa: E402
+                    main, make_dir, records, rowfit, snapshot, table, value)
 
 T = Runner()
 test = T.test
@@ -168,28 +169,9 @@ def sha256(path):
         return hashlib.sha256(f.read()).hexdigest()
 
 
-def make_dir(name, files):
-    d = os.path.join(TMP, name)
-    os.makedirs(d)
-    for fname, text in files.items():
-        with open(os.path.join(d, fname), "w", newline="") as f:
-            f.write(text)
-    return d
-
-
 def house_dir(name):
-    return make_dir(name, {"sales.csv": SALES, "listings.csv": LISTINGS,
-                           "spring.job": JOB})
-
-
-def snapshot(d):
-    """Every file under d with its size and modification time."""
-    out = {}
-    for root, _, files in os.walk(d):
-        for f in files:
-            st = os.stat(os.path.join(root, f))
-            out[os.path.relpath(os.path.join(root, f), d)] = (st.st_size, st.st_mtime_ns)
-    return out
+    return make_dir(TMP, name, {"sales.csv": SALES, "listings.csv": LISTINGS,
+                                "spring.job": JOB})
 
 
 # The main run is shared by the tests that read its workbook.
@@ -507,10 +489,10 @@ B-10,226300,1977,3954,3,0.25
 
 @test
 def test_collinear_and_constant_inputs_keep_their_rows_with_a_note():
-    d = make_dir("collinear", {"coll.csv": COLL, "coll.job":
-                               "data coll.csv\ntarget price\n"
-                               "inputs sqft, sqft_double, bathrooms, lot\n"
-                               "model linear\nfolds 0\n"})
+    d = make_dir(TMP, "collinear", {"coll.csv": COLL, "coll.job":
+                                    "data coll.csv\ntarget price\n"
+                                    "inputs sqft, sqft_double, bathrooms, lot\n"
+                                    "model linear\nfolds 0\n"})
     p = rowfit(["-q", "coll.job"], d)
     assert p.returncode == 0, "collinear job: " + describe(p)
     wb = load(os.path.join(d, "coll-results.xlsx"))
@@ -697,12 +679,4 @@ add_bad_corpus()
 
 
 if __name__ == "__main__":
-    if not os.access(ROWFIT, os.X_OK):
-        print("test_e2e.py: no rowfit at %s (set ROWFIT)" % ROWFIT)
-        print("0 passed, 1 failed")
-        sys.exit(1)
-    try:
-        rc = T.run(sys.argv[1:])
-    finally:
-        shutil.rmtree(TMP, ignore_errors=True)
-    sys.exit(rc)
+    main(T, TMP)

@@ -35,27 +35,22 @@ Prints PASS/FAIL per test and `N passed, M failed`; exits 1 on a failure.
 import csv
 import math
 import os
-import re
 import shutil
 import sys
 import tempfile
 
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from common import REPO, ROWFIT, Runner, describe, records, rowfit, table, value  # noqa: E402
+from common import (Runner, describe, is_num, main, make_dir, mann_whitney_auc,  # noqa: E402
+                    need_numpy, oracle, records, rel_err, rowfit, run_job,
+                    snapshot, strip_job, summary_measures, table, value, WB)
 import openpyxl  # noqa: E402  (common re-runs us under Debian's python3)
 
-try:
-    import numpy as np
-except ImportError:  # pragma: no cover
-    print("FAIL numpy_installed: needs python3-numpy (Debian's /usr/bin/python3)")
-    print("0 passed, 1 failed")
-    sys.exit(1)
+np = need_numpy()
 
 T = Runner()
 test = T.test
 TMP = tempfile.mkdtemp(prefix="rowfit-logistic-")
-WB = os.path.join(REPO, "workbooks")
 
 # Contract section 3 and docs/workbook.md ("Logistic model").
 EST_FIXED = ["source", "row"]          # then id, target, then:
@@ -74,55 +69,7 @@ SUMMARY_GRADIENT = ["solver", "iterations", "stopped", "final cost", "rate",
 CLIP = 1e-15   # log loss clip, docs/workbook.md "log loss"
 
 
-def oracle():
-    """statsmodels (python3-statsmodels) and scipy.stats, test oracles only."""
-    try:
-        import statsmodels.api as sm
-        from scipy import stats
-    except ImportError as e:
-        raise AssertionError("needs python3-statsmodels and python3-scipy: %s" % e)
-    return sm, stats
-
-
 # ------------------------------------------------------------------ helpers
-
-def make_dir(name, files=None, copy=()):
-    """A fresh folder under TMP with the given text files and copies of
-    files from workbooks/."""
-    d = os.path.join(TMP, name)
-    os.makedirs(d)
-    for fname, text in (files or {}).items():
-        with open(os.path.join(d, fname), "w", newline="") as f:
-            f.write(text)
-    for fname in copy:
-        shutil.copy(os.path.join(WB, fname), d)
-    return d
-
-
-def snapshot(d):
-    out = {}
-    for root, _, files in os.walk(d):
-        for f in files:
-            st = os.stat(os.path.join(root, f))
-            out[os.path.relpath(os.path.join(root, f), d)] = (st.st_size, st.st_mtime_ns)
-    return out
-
-
-def strip_job(path, add=()):
-    """A job file's directives without comments, plus extra lines."""
-    with open(path) as f:
-        lines = [ln for ln in f.read().splitlines()
-                 if ln.strip() and not ln.lstrip().startswith("#")]
-    return "\n".join(lines + list(add)) + "\n"
-
-
-def is_num(v):
-    return isinstance(v, (int, float)) and not isinstance(v, bool)
-
-
-def rel_err(a, b):
-    return abs(a - b) / max(abs(b), 1e-300)
-
 
 def near(a, b, rel, what, scale=0.0):
     """a (rowfit) equals b (the oracle) to rel relative, or to rel * scale."""
@@ -137,12 +84,9 @@ class Result:
 
     def __init__(self, d, job, out="result.xlsx", expect=0):
         self.dir = d
-        self.path = os.path.join(d, out)
-        self.proc = rowfit(["-q", "-o", out, "--force", job], d)
-        assert self.proc.returncode == expect, "rowfit %s: %s" % (job, describe(self.proc))
+        self.proc, self.path = run_job(d, job, out, expect)
         if expect != 0:
             return
-        assert os.path.exists(self.path), "%s: no workbook written" % job
         self.wbf = openpyxl.load_workbook(self.path, data_only=False)
         self.wbv = openpyxl.load_workbook(self.path, data_only=True)
 
@@ -163,13 +107,7 @@ class Result:
 
     def summary(self):
         """measure -> value (the measures block, above the first blank row)."""
-        out = {}
-        for row in list(self.wbv["Summary"].iter_rows(values_only=True))[1:]:
-            if row[0] is None:
-                break
-            assert row[0] not in out, "Summary measure %r twice" % row[0]
-            out[row[0]] = row[1]
-        return out
+        return summary_measures(self.wbv)
 
     def summary_rows(self):
         return list(self.wbv["Summary"].iter_rows(values_only=True))
@@ -204,16 +142,6 @@ def fitted_py(res, target, positive):
     y = np.array([1.0 if is_label(r[target], positive) else 0.0
                   for r in rows if r["status"] == "fitted"])
     return p, y
-
-
-def mann_whitney_auc(p, y):
-    """AUC as the Mann-Whitney statistic by counting every (positive,
-    negative) pair, ties one half (docs/workbook.md "auc"; Mann & Whitney,
-    Ann. Math. Statist. 18 (1947) 50)."""
-    pos, neg = p[y == 1], p[y == 0]
-    gt = (pos[:, None] > neg[None, :]).sum()
-    eq = (pos[:, None] == neg[None, :]).sum()
-    return (gt + 0.5 * eq) / (len(pos) * len(neg))
 
 
 def brier(p, y):   # docs/workbook.md "brier score"
@@ -278,8 +206,8 @@ def demo():
         raise AssertionError("the demo run failed earlier: " + _DEMO["error"])
     if "res" not in _DEMO:
         try:
-            d = make_dir("demo", copy=("applicants.job", "applicants.csv",
-                                       "new-applicants.csv"))
+            d = make_dir(TMP, "demo", copy=("applicants.job", "applicants.csv",
+                                            "new-applicants.csv"))
             _DEMO["res"] = Result(d, "applicants.job")
         except AssertionError as e:
             _DEMO["error"] = str(e)
@@ -508,10 +436,10 @@ def anes():
         for i in range(len(y)):
             lines.append("A%03d,%d," % (i + 1, int(y[i])) +
                          ",".join(repr(float(v)) for v in X[i, 1:]))
-        d = make_dir("anes96", {
+        d = make_dir(TMP, "anes96", {
             "anes96.csv": "\n".join(lines) + "\n",
             "anes.job": "data anes96.csv\ntarget vote\nmodel logistic\n"
-                        "inputs " + ", ".join(ANES_INPUTS) + "\nid id\n"})
+                             "inputs " + ", ".join(ANES_INPUTS) + "\nid id\n"})
         res = Result(d, "anes.job")
         res.target, res.positive = "vote", 1
         _ANES.update(res=res, X=X, y=y)
@@ -608,8 +536,8 @@ S12,0.8,0
 def test_small_case_measures_from_an_independent_fit():
     # Oracle: statsmodels Logit (python3-statsmodels), Newton, tol 1e-14.
     sm, _ = oracle()
-    d = make_dir("small", {"small.csv": SMALL, "small.job":
-                           "data small.csv\ntarget y\nmodel logistic\ninputs x\nid case\n"})
+    d = make_dir(TMP, "small", {"small.csv": SMALL, "small.job":
+                                "data small.csv\ntarget y\nmodel logistic\ninputs x\nid case\n"})
     res = Result(d, "small.job")
     rows = [ln.split(",") for ln in SMALL.splitlines()[1:]]
     x = np.array([float(r[1]) for r in rows])
@@ -672,7 +600,7 @@ def test_demo_confusion_block_matches_estimates():
 @test
 def test_threshold_0_3_moves_the_counts():
     base = demo()
-    d = make_dir("thr03", {"t.job": strip_job(os.path.join(WB, "applicants.job")).replace(
+    d = make_dir(TMP, "thr03", {"t.job": strip_job(os.path.join(WB, "applicants.job")).replace(
         "threshold 0.5", "threshold 0.3")}, copy=("applicants.csv", "new-applicants.csv"))
     res = Result(d, "t.job")
     b_rows, _ = base.est()
@@ -721,7 +649,7 @@ SEP_JOB = "job sep\ndata sep.csv\ntarget y\nmodel logistic\ninputs x, w\nid id\n
 
 @test
 def test_separation_is_refused_with_advice_and_nothing_written():
-    d = make_dir("sep", {"sep.csv": SEPARATED, "sep.job": SEP_JOB})
+    d = make_dir(TMP, "sep", {"sep.csv": SEPARATED, "sep.job": SEP_JOB})
     before = snapshot(d)
     p = rowfit(["-q", "sep.job"], d)
     assert p.returncode == 1, "separated data: " + describe(p)
@@ -733,7 +661,7 @@ def test_separation_is_refused_with_advice_and_nothing_written():
 
 @test
 def test_ridge_gives_finite_penalised_optimum():
-    d = make_dir("sep-ridge", {"sep.csv": SEPARATED, "sep.job": SEP_JOB + "ridge 1\n"})
+    d = make_dir(TMP, "sep-ridge", {"sep.csv": SEPARATED, "sep.job": SEP_JOB + "ridge 1\n"})
     res = Result(d, "sep.job")
     coef = res.coef()
     assert list(coef) == ["(intercept)", "x", "w"], "terms %r" % list(coef)
@@ -808,8 +736,8 @@ def gradient_checks(res, exact, what, logistic):
 @test
 def test_gradient_solver_on_applicants_demo():
     exact = demo()
-    d = make_dir("grad-appl", {"g.job": strip_job(os.path.join(WB, "applicants.job"),
-                                                  ["solver gradient"])},
+    d = make_dir(TMP, "grad-appl", {"g.job": strip_job(os.path.join(WB, "applicants.job"),
+                                                       ["solver gradient"])},
                  copy=("applicants.csv", "new-applicants.csv"))
     res = Result(d, "g.job")
     gradient_checks(res, exact, "applicants", True)
@@ -823,9 +751,9 @@ def test_gradient_solver_on_applicants_demo():
 @test
 def test_gradient_solver_on_house_prices_demo():
     files = ("house-prices.job", "house-sales.csv", "house-listings.csv")
-    exact = Result(make_dir("house-exact", copy=files), "house-prices.job")
-    d = make_dir("grad-house", {"g.job": strip_job(os.path.join(WB, "house-prices.job"),
-                                                   ["solver gradient"])},
+    exact = Result(make_dir(TMP, "house-exact", copy=files), "house-prices.job")
+    d = make_dir(TMP, "grad-house", {"g.job": strip_job(os.path.join(WB, "house-prices.job"),
+                                                        ["solver gradient"])},
                  copy=files[1:])
     res = Result(d, "g.job")
     gradient_checks(res, exact, "house-prices", False)
@@ -833,8 +761,8 @@ def test_gradient_solver_on_house_prices_demo():
 
 @test
 def test_gradient_solver_epoch_cap_is_an_error():
-    d = make_dir("grad-cap", {"g.job": strip_job(os.path.join(WB, "applicants.job"),
-                                                 ["solver gradient", "epochs 3"])},
+    d = make_dir(TMP, "grad-cap", {"g.job": strip_job(os.path.join(WB, "applicants.job"),
+                                                      ["solver gradient", "epochs 3"])},
                  copy=("applicants.csv", "new-applicants.csv"))
     before = snapshot(d)
     p = rowfit(["-q", "g.job"], d)
@@ -871,7 +799,7 @@ _LABELS = {}
 def numeric_labels_run():
     """The 0/1 target, without `positive`: the reference for the others."""
     if "res" not in _LABELS:
-        d = make_dir("labels-01", {"n.csv": labels_csv(str), "n.job": labels_job("n.csv")})
+        d = make_dir(TMP, "labels-01", {"n.csv": labels_csv(str), "n.job": labels_job("n.csv")})
         _LABELS["res"] = Result(d, "n.job")
     return _LABELS["res"]
 
@@ -899,10 +827,10 @@ def test_numeric_0_1_target_without_positive():
 def test_two_text_labels_with_positive():
     ref = numeric_labels_run()
     lab = lambda v: "completed" if v else "withdrew"   # noqa: E731
-    d = make_dir("labels-text", {"t.csv": labels_csv(lab),
-                                 "t.job": labels_job("t.csv", "positive completed\n"),
-                                 "w.job": labels_job("t.csv", "positive withdrew\n"),
-                                 "none.job": labels_job("t.csv")})
+    d = make_dir(TMP, "labels-text", {"t.csv": labels_csv(lab),
+                                      "t.job": labels_job("t.csv", "positive completed\n"),
+                                      "w.job": labels_job("t.csv", "positive withdrew\n"),
+                                      "none.job": labels_job("t.csv")})
     res = Result(d, "t.job", "t.xlsx")
     rows, _ = res.est()
     rrows, _ = ref.est()
@@ -929,7 +857,7 @@ def test_two_text_labels_with_positive():
 def test_boolean_target_in_xlsx():
     ref = numeric_labels_run()
     x, z, y = labels_data()
-    d = make_dir("labels-bool", {"b.job": labels_job("answers.xlsx")})
+    d = make_dir(TMP, "labels-bool", {"b.job": labels_job("answers.xlsx")})
     wb = openpyxl.Workbook()
     ws = wb.active
     ws.title = "answers"
@@ -1015,13 +943,4 @@ add_recalc_test()
 
 
 if __name__ == "__main__":
-    if not os.access(ROWFIT, os.X_OK):
-        print("test_logistic.py: no rowfit at %s (set ROWFIT)" % ROWFIT)
-        print("0 passed, 1 failed")
-        sys.exit(1)
-    try:
-        rc = T.run(sys.argv[1:])
-    finally:
-        if os.environ.get("ROWFIT_KEEP_TMP") != "1":
-            shutil.rmtree(TMP, ignore_errors=True)
-    sys.exit(rc)
+    main(T, TMP)

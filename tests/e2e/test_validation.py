@@ -45,27 +45,22 @@ Prints PASS/FAIL per test and `N passed, M failed`; exits 1 on a failure.
 """
 import math
 import os
-import shutil
 import sys
 import tempfile
 import warnings
 
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from common import REPO, ROWFIT, Runner, describe, records, rowfit, value  # noqa: E402
+from common import (Runner, describe, is_num, main, make_dir, mann_whitney_auc,  # noqa: E402
+                    need_numpy, oracle, records, rel_err, rowfit, run_job,
+                    strip_job, summary_measures, value, WB)
 import openpyxl  # noqa: E402  (common re-runs us under Debian's python3)
 
-try:
-    import numpy as np
-except ImportError:  # pragma: no cover
-    print("FAIL numpy_installed: needs python3-numpy (Debian's /usr/bin/python3)")
-    print("0 passed, 1 failed")
-    sys.exit(1)
+np = need_numpy()
 
 T = Runner()
 test = T.test
 TMP = tempfile.mkdtemp(prefix="rowfit-validation-")
-WB = os.path.join(REPO, "workbooks")
 
 # Contract section 3.
 SHEETS_CV = ["Estimates", "Coefficients", "Summary", "Validation", "Diagnostics", "Job"]
@@ -82,30 +77,7 @@ ANES_INPUTS = ["logpopul", "TVnews", "selfLR", "ClinLR", "DoleLR", "PID",
                "age", "educ", "income"]
 
 
-def oracle():
-    """statsmodels (python3-statsmodels) and scipy.stats, test oracles only."""
-    try:
-        import statsmodels.api as sm
-        from scipy import stats
-    except ImportError as e:
-        raise AssertionError("needs python3-statsmodels and python3-scipy: %s" % e)
-    return sm, stats
-
-
 # ------------------------------------------------------------------ helpers
-
-def make_dir(name, files=None, copy=()):
-    """A fresh folder under TMP with the given text files and copies of
-    files from workbooks/."""
-    d = os.path.join(TMP, name)
-    os.makedirs(d)
-    for fname, text in (files or {}).items():
-        with open(os.path.join(d, fname), "w", newline="") as f:
-            f.write(text)
-    for fname in copy:
-        shutil.copy(os.path.join(WB, fname), d)
-    return d
-
 
 def csv_text(names, cols):
     """A CSV of numeric columns, every value at full precision (repr)."""
@@ -113,22 +85,6 @@ def csv_text(names, cols):
     for i in range(len(cols[0])):
         lines.append(",".join(repr(float(c[i])) for c in cols))
     return "\n".join(lines) + "\n"
-
-
-def strip_job(path, add=()):
-    """A job file's directives without comments, plus extra lines."""
-    with open(path) as f:
-        lines = [ln for ln in f.read().splitlines()
-                 if ln.strip() and not ln.lstrip().startswith("#")]
-    return "\n".join(lines + list(add)) + "\n"
-
-
-def is_num(v):
-    return isinstance(v, (int, float)) and not isinstance(v, bool)
-
-
-def rel_err(a, b):
-    return abs(a - b) / max(abs(b), 1e-300)
 
 
 def worst_rel(got, want, floor=0.0):
@@ -146,12 +102,9 @@ class Run:
 
     def __init__(self, d, job, out="result.xlsx", expect=0):
         self.dir = d
-        self.path = os.path.join(d, out)
-        self.proc = rowfit(["-q", "-o", out, "--force", job], d)
-        assert self.proc.returncode == expect, "rowfit %s: %s" % (job, describe(self.proc))
+        self.proc, self.path = run_job(d, job, out, expect)
         if expect != 0:
             return
-        assert os.path.exists(self.path), "%s: no workbook written" % job
         self.wb = openpyxl.load_workbook(self.path, data_only=True)
 
     def rows(self, sheet):
@@ -180,13 +133,7 @@ class Run:
 
     def summary(self):
         """measure -> value (the measures block, above the first blank row)."""
-        out = {}
-        for row in self.rows("Summary")[1:]:
-            if row[0] is None:
-                break
-            assert row[0] not in out, "Summary measure %r twice" % row[0]
-            out[row[0]] = row[1]
-        return out
+        return summary_measures(self.wb)
 
     def diag(self):
         """Diagnostics rows (dicts of values) and the threshold block:
@@ -466,17 +413,6 @@ def numeric_measures(y, p):
             1 - np.sum(e * e) / tss if tss > 0 else float("nan"))
 
 
-def mann_whitney_auc(p, y):
-    """AUC as the Mann-Whitney U / (n1 n0), ties one half (Hanley & McNeil
-    1982), by brute force over the pairs of each class."""
-    pos, neg = p[y == 1], p[y == 0]
-    if len(pos) == 0 or len(neg) == 0:
-        return float("nan")
-    gt = (pos[:, None] > neg[None, :]).sum()
-    eq = (pos[:, None] == neg[None, :]).sum()
-    return (gt + 0.5 * eq) / (len(pos) * len(neg))
-
-
 def class_measures(y, p, thr=0.5):
     """accuracy at thr (p >= thr is a yes), AUC, log loss clipped to
     [1e-15, 1 - 1e-15] (docs/workbook.md)."""
@@ -546,10 +482,10 @@ def stackloss_csv():
 def stack_run(name, extra=""):
     def make():
         cols, text = stackloss_csv()
-        d = make_dir(name, {"stack.csv": text,
-                            "stack.job": "data stack.csv\ntarget STACKLOSS\n"
-                                         "inputs " + ", ".join(STACK_INPUTS) +
-                                         "\nmodel linear\n" + extra})
+        d = make_dir(TMP, name, {"stack.csv": text,
+                                 "stack.job": "data stack.csv\ntarget STACKLOSS\n"
+                                              "inputs " + ", ".join(STACK_INPUTS) +
+                                              "\nmodel linear\n" + extra})
         run = Run(d, "stack.job")
         X = np.column_stack([np.ones(21)] + [cols[c] for c in STACK_INPUTS])
         return run, X, cols["STACKLOSS"]
@@ -570,7 +506,7 @@ def anes_run(model):
         else:
             target, inputs = "selfLR", [c for c in ANES_INPUTS if c != "selfLR"]
         cols = [data[target].to_numpy(float)] + [data[c].to_numpy(float) for c in inputs]
-        d = make_dir("anes96-" + model, {
+        d = make_dir(TMP, "anes96-" + model, {
             "anes96.csv": csv_text([target] + inputs, cols),
             "anes.job": "data anes96.csv\ntarget %s\nmodel %s\ninputs %s\n" % (
                 target, model, ", ".join(inputs))})
@@ -584,7 +520,7 @@ def house_run(name="house", add=(), edit=None):
     """The linear demo (workbooks/house-prices.job and its tables), with
     extra job lines, and edit(lines of house-sales.csv) applied first."""
     def make():
-        d = make_dir(name, copy=["house-sales.csv", "house-listings.csv"])
+        d = make_dir(TMP, name, copy=["house-sales.csv", "house-listings.csv"])
         if edit is not None:
             path = os.path.join(d, "house-sales.csv")
             with open(path) as f:
@@ -601,7 +537,7 @@ def house_run(name="house", add=(), edit=None):
 def applicants_run(name="applicants", add=()):
     """The yes/no demo (workbooks/applicants.job and its tables)."""
     def make():
-        d = make_dir(name, copy=["applicants.csv", "new-applicants.csv"])
+        d = make_dir(TMP, name, copy=["applicants.csv", "new-applicants.csv"])
         with open(os.path.join(d, "applicants.job"), "w") as f:
             f.write(strip_job(os.path.join(WB, "applicants.job"), add))
         return Run(d, "applicants.job")
@@ -825,8 +761,8 @@ def test_leave_one_out_with_a_level_seen_in_one_row_refits_that_fold():
     grp = ["a"] * 6 + ["b"] * 5 + ["c"]
     y = 2 + 1.5 * x + np.array([{"a": 0, "b": 1, "c": 3}[g] for g in grp]) + 0.3 * rng.normal(size=n)
     text = "y,x,grp\n" + "".join("%r,%r,%s\n" % (float(y[i]), float(x[i]), grp[i]) for i in range(n))
-    d = make_dir("loo-level", {"d.csv": text, "d.job": "data d.csv\ntarget y\ninputs x\n"
-                               "categories grp\nmodel linear\nfolds 12\n"})
+    d = make_dir(TMP, "loo-level", {"d.csv": text, "d.job": "data d.csv\ntarget y\ninputs x\n"
+                                    "categories grp\nmodel linear\nfolds 12\n"})
     run = Run(d, "d.job")
     X = design(run)
     cv = column(run, "cv estimate")
@@ -1069,8 +1005,8 @@ def few_positives_run(name, npos):
         x = np.linspace(-3, 3, 100)
         y = np.zeros(100)
         y[np.linspace(30, 70, npos).astype(int)] = 1
-        d = make_dir(name, {"d.csv": csv_text(["x", "y"], [x, y]),
-                            "d.job": "data d.csv\ntarget y\ninputs x\nmodel logistic\nfolds 5\n"})
+        d = make_dir(TMP, name, {"d.csv": csv_text(["x", "y"], [x, y]),
+                                 "d.job": "data d.csv\ntarget y\ninputs x\nmodel logistic\nfolds 5\n"})
         return Run(d, "d.job"), y
     return cached(name, make)
 
@@ -1143,9 +1079,9 @@ def test_fixed_ridge_leave_one_out_standardizes_on_training_rows_only():
     # rows.
     X, y = leak_data()
     n, lam = len(y), 10.0
-    d = make_dir("leak-fixed", {"d.csv": csv_text(["y", "x1", "x2"], [y, X[:, 0], X[:, 1]]),
-                                "d.job": "data d.csv\ntarget y\ninputs x1, x2\nmodel linear\n"
-                                         "ridge 10\nfolds 30\n"})
+    d = make_dir(TMP, "leak-fixed", {"d.csv": csv_text(["y", "x1", "x2"], [y, X[:, 0], X[:, 1]]),
+                                     "d.job": "data d.csv\ntarget y\ninputs x1, x2\nmodel linear\n"
+                                              "ridge 10\nfolds 30\n"})
     run = Run(d, "d.job")
     cv = column(run, "cv estimate")
     honest, leaky, unscaled = np.empty(n), np.empty(n), np.empty(n)
@@ -1183,9 +1119,9 @@ def auto_data(seed, n=60):
 def auto_run():
     def make():
         X, y = auto_data(5)
-        d = make_dir("leak-auto", {"d.csv": csv_text(["y", "x1", "x2", "x3"], [y] + list(X.T)),
-                                   "d.job": "data d.csv\ntarget y\ninputs x1, x2, x3\nmodel linear\n"
-                                            "ridge auto\n"})
+        d = make_dir(TMP, "leak-auto", {"d.csv": csv_text(["y", "x1", "x2", "x3"], [y] + list(X.T)),
+                                        "d.job": "data d.csv\ntarget y\ninputs x1, x2, x3\nmodel linear\n"
+                                                 "ridge auto\n"})
         return Run(d, "d.job"), X, y
     return cached("leak-auto", make)
 
@@ -1251,9 +1187,9 @@ def test_ridge_auto_with_leave_one_out_folds():
     # must either run, or refuse with a message naming the job's line;
     # it may not say there are fewer rows than the data has.
     X, y = leak_data()
-    d = make_dir("auto-loo", {"d.csv": csv_text(["y", "x1", "x2"], [y, X[:, 0], X[:, 1]]),
-                              "d.job": "data d.csv\ntarget y\ninputs x1, x2\nmodel linear\n"
-                                       "ridge auto\nfolds 30\n"})
+    d = make_dir(TMP, "auto-loo", {"d.csv": csv_text(["y", "x1", "x2"], [y, X[:, 0], X[:, 1]]),
+                                   "d.job": "data d.csv\ntarget y\ninputs x1, x2\nmodel linear\n"
+                                            "ridge auto\nfolds 30\n"})
     p = rowfit(["-q", "-o", "r.xlsx", "--force", "d.job"], d)
     if p.returncode == 0:
         wb = openpyxl.load_workbook(os.path.join(d, "r.xlsx"), data_only=True)
@@ -1365,7 +1301,7 @@ def test_ridge_auto_on_well_conditioned_inputs_keeps_least_squares_coefficients(
     y = 1 + X @ np.array([2.0, -3.0, 0.5]) + rng.normal(size=n)
     data = csv_text(["y", "x1", "x2", "x3"], [y] + list(X.T))
     base = "data d.csv\ntarget y\ninputs x1, x2, x3\nmodel linear\n"
-    d = make_dir("well", {"d.csv": data, "ols.job": base, "auto.job": base + "ridge auto\n"})
+    d = make_dir(TMP, "well", {"d.csv": data, "ols.job": base, "auto.job": base + "ridge auto\n"})
     plain = Run(d, "ols.job", "ols.xlsx").coef()
     auto = Run(d, "auto.job", "auto.xlsx")
     cond = np.linalg.cond((X - X.mean(0)) / X.std(0))
@@ -1456,20 +1392,11 @@ def test_folds_0_and_small_data_have_no_cross_validation():
     rng = np.random.default_rng(3)
     for n, want in ((49, None), (50, 5)):
         x = rng.normal(size=n)
-        d = make_dir("rows%d" % n, {"d.csv": csv_text(["y", "x"], [1 + x + rng.normal(size=n), x]),
-                                    "d.job": "data d.csv\ntarget y\ninputs x\nmodel linear\n"})
+        d = make_dir(TMP, "rows%d" % n, {"d.csv": csv_text(["y", "x"], [1 + x + rng.normal(size=n), x]),
+                                         "d.job": "data d.csv\ntarget y\ninputs x\nmodel linear\n"})
         s = Run(d, "d.job").summary()
         assert s.get("folds") == want, "%d rows: folds %r, want %r" % (n, s.get("folds"), want)
 
 
 if __name__ == "__main__":
-    if not os.access(ROWFIT, os.X_OK):
-        print("test_validation.py: no rowfit at %s (set ROWFIT)" % ROWFIT)
-        print("0 passed, 1 failed")
-        sys.exit(1)
-    try:
-        rc = T.run(sys.argv[1:])
-    finally:
-        if os.environ.get("ROWFIT_KEEP_TMP") != "1":
-            shutil.rmtree(TMP, ignore_errors=True)
-    sys.exit(rc)
+    main(T, TMP)
