@@ -55,14 +55,14 @@ $(BUILD)/%.o: %.c
 	$(CC) $(CFLAGS) -MMD -MP -c -o $@ $<
 
 # A unit test links the module objects; helpers in tests/testutil.h.
-$(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h tests/ziptest.h $(LIB_OBJ)
+$(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h tests/ziptest.h tests/tabletest.h $(LIB_OBJ)
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS) -lcmocka
 
 # The allocation-failure test wraps our objects' calls to the allocator
 # (libraries keep theirs: --wrap only rebinds references in our objects).
 OOM_WRAP := $(foreach f,malloc calloc realloc free strdup strndup,-Wl,--wrap=$(f))
-$(BUILD)/tests/test_oom: tests/test_oom.c tests/testutil.h $(LIB_OBJ)
+$(BUILD)/tests/test_oom: tests/test_oom.c tests/testutil.h tests/tabletest.h $(LIB_OBJ)
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(OOM_WRAP) $(LDLIBS) -lcmocka
 
