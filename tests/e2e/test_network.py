@@ -52,6 +52,7 @@ import warnings
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from common import REPO, ROWFIT, Runner, describe, rowfit  # noqa: E402
+from common import make_dir as common_make_dir  # noqa: E402
 import openpyxl  # noqa: E402  (common re-runs us under Debian's python3)
 
 try:
@@ -87,16 +88,8 @@ ROWS_PER_WEIGHT = 10   # engine/fit.c NETWORK_ROWS_PER_WEIGHT
 # ------------------------------------------------------------------ helpers
 
 def make_dir(name, files=None, copy=()):
-    """A fresh folder under TMP with the given text files and copies of
-    files from workbooks/."""
-    d = os.path.join(TMP, name)
-    os.makedirs(d)
-    for fname, text in (files or {}).items():
-        with open(os.path.join(d, fname), "w", newline="") as f:
-            f.write(text)
-    for fname in copy:
-        shutil.copy(os.path.join(WB, fname), d)
-    return d
+    """A fresh folder under TMP (common.make_dir)."""
+    return common_make_dir(TMP, name, files, copy)
 
 
 def csv_text(names, cols):
