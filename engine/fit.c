@@ -99,6 +99,23 @@ typedef struct fold_set {
     size_t nt, ntest;
 } fold_set;
 
+/* The training rows of a fold, copied out (the fits take contiguous rows):
+ * *Xt (nt x p) and *yt (nt), caller frees both, also on error. */
+static rf_status train_copy(const design *d, const fit *f, const fold_set *fs,
+                            long double **Xt, double **yt, rf_error *err)
+{
+    size_t p = d->p;
+    *Xt = malloc((fs->nt ? fs->nt : 1) * p * sizeof **Xt);
+    *yt = malloc((fs->nt ? fs->nt : 1) * sizeof **yt);
+    if (*Xt == NULL || *yt == NULL)
+        return error_nomem(err, NULL);
+    for (size_t t = 0; t < fs->nt; t++) {
+        memcpy(*Xt + t * p, d->X + fs->train[t] * p, p * sizeof **Xt);
+        (*yt)[t] = f->y[fs->train[t]];
+    }
+    return RF_OK;
+}
+
 /* A network's fold: its training rows trained as the full fit is (same
  * options, so its own held-out slice and standardizing come from those
  * rows), the test rows estimated. A training loss that turns non-finite
@@ -108,18 +125,12 @@ static rf_status fold_fit_network(const design *d, const fit *f,
                                   size_t *failed, rf_error *err)
 {
     size_t p = d->p;
-    long double *Xt = malloc((fs->nt ? fs->nt : 1) * p * sizeof *Xt);
-    double *yt = malloc((fs->nt ? fs->nt : 1) * sizeof *yt);
-    rf_status st = RF_OK;
+    long double *Xt = NULL;
+    double *yt = NULL;
     network_model *m = NULL;
-    if (Xt == NULL || yt == NULL) {
-        st = error_nomem(err, NULL);
+    rf_status st = train_copy(d, f, fs, &Xt, &yt, err);
+    if (st)
         goto out;
-    }
-    for (size_t t = 0; t < fs->nt; t++) {
-        memcpy(Xt + t * p, d->X + fs->train[t] * p, p * sizeof *Xt);
-        yt[t] = f->y[fs->train[t]];
-    }
     /* the same penalty per row as the full fit (its objective divides the
      * penalty by the training rows) */
     network_options o = f->net_opt;
@@ -192,16 +203,8 @@ static rf_status fold_fit(const job *j, const design *d, const fit *f,
         free(beta);
         return st;
     }
-    Xt = malloc((fs->nt ? fs->nt : 1) * p * sizeof *Xt);
-    yt = malloc((fs->nt ? fs->nt : 1) * sizeof *yt);
-    if (Xt == NULL || yt == NULL) {
-        st = error_nomem(err, NULL);
+    if ((st = train_copy(d, f, fs, &Xt, &yt, err)))
         goto out;
-    }
-    for (size_t t = 0; t < fs->nt; t++) {
-        memcpy(Xt + t * p, d->X + fs->train[t] * p, p * sizeof *Xt);
-        yt[t] = f->y[fs->train[t]];
-    }
     for (size_t g = 0; g < G; g++) {
         logistic_model *m = NULL;
         rf_error e2;

@@ -25,8 +25,8 @@ static void *alloc_array(size_t n, size_t size)
     return malloc((n ? n : 1) * size);
 }
 
-rf_status validate_folds(size_t n, size_t k, unsigned long seed,
-                         const double *cls, size_t *fold, rf_error *err)
+/* k folds of n rows: at least 2, and no more than the rows. */
+static rf_status folds_check(size_t n, size_t k, rf_error *err)
 {
     if (k < 2)
         return error_set(err, RF_EINPUT, NULL,
@@ -36,6 +36,14 @@ rf_status validate_folds(size_t n, size_t k, unsigned long seed,
         return error_set(err, RF_EINPUT, NULL,
                          "%zu folds need at least %zu rows; there %s %zu",
                          k, k, n == 1 ? "is" : "are", n);
+    return RF_OK;
+}
+
+rf_status validate_folds(size_t n, size_t k, unsigned long seed,
+                         const double *cls, size_t *fold, rf_error *err)
+{
+    if (folds_check(n, k, err))
+        return err->status;
     assert(fold != NULL);
     if (cls != NULL)
         for (size_t i = 0; i < n; i++)
@@ -153,14 +161,8 @@ rf_status validate_measure(const double *y, const double *pred,
     if (n == 0)
         return error_set(err, RF_EINPUT, NULL,
                          "cross-validation measures need at least one row");
-    if (k < 2)
-        return error_set(err, RF_EINPUT, NULL,
-                         "cross-validation needs at least 2 folds, not %zu",
-                         k);
-    if (k > n)
-        return error_set(err, RF_EINPUT, NULL,
-                         "%zu folds need at least %zu rows; there %s %zu",
-                         k, k, n == 1 ? "is" : "are", n);
+    if (folds_check(n, k, err))
+        return err->status;
     assert(y != NULL && pred != NULL && fold != NULL);
     rf_status st = check_inputs(y, pred, n, classify, threshold, err);
     if (st != RF_OK)

@@ -87,6 +87,28 @@ def records(wb, sheet):
     return [dict(zip(head, r)) for r in rows]
 
 
+class WorkbookRun:
+    """One rowfit run (`run_job`) and its workbook read for cached values;
+    the suites add their own readers of the sheets."""
+
+    def __init__(self, d, job, out="result.xlsx", expect=0):
+        import openpyxl
+        self.dir = d
+        self.proc, self.path = run_job(d, job, out, expect)
+        if expect != 0:
+            return
+        self.wb = openpyxl.load_workbook(self.path, data_only=True)
+
+    def rows(self, sheet):
+        return list(self.wb[sheet].iter_rows(values_only=True))
+
+    def head(self, sheet):
+        h = list(self.rows(sheet)[0])
+        while h and h[-1] is None:
+            h.pop()
+        return h
+
+
 def summary_measures(wb):
     """measure -> value of a workbook's Summary sheet (the measures block,
     above the first blank row; read wb with data_only=True)."""

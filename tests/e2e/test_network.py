@@ -44,14 +44,14 @@ Prints PASS/FAIL per test and `N passed, M failed`; exits 1 on a failure.
 import math
 import os
 import re
-import shutil
 import sys
 import tempfile
 import warnings
 
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from common import REPO, ROWFIT, Runner, describe, rowfit  # noqa: E402
+from common import REPO, Runner, describe, rowfit  # noqa: E402
+from common import WorkbookRun, is_num, main  # noqa: E402
 from common import make_dir as common_make_dir  # noqa: E402
 import openpyxl  # noqa: E402  (common re-runs us under Debian's python3)
 
@@ -110,31 +110,8 @@ def demo_job(path, model, add=()):
     return "\n".join(lines + list(add)) + "\n"
 
 
-def is_num(v):
-    return isinstance(v, (int, float)) and not isinstance(v, bool)
-
-
-class Run:
+class Run(WorkbookRun):
     """One rowfit run and its workbook (cached values)."""
-
-    def __init__(self, d, job, out="result.xlsx", expect=0):
-        self.dir = d
-        self.path = os.path.join(d, out)
-        self.proc = rowfit(["-q", "-o", out, "--force", job], d)
-        assert self.proc.returncode == expect, "rowfit %s: %s" % (job, describe(self.proc))
-        if expect != 0:
-            return
-        assert os.path.exists(self.path), "%s: no workbook written" % job
-        self.wb = openpyxl.load_workbook(self.path, data_only=True)
-
-    def rows(self, sheet):
-        return list(self.wb[sheet].iter_rows(values_only=True))
-
-    def head(self, sheet):
-        h = list(self.rows(sheet)[0])
-        while h and h[-1] is None:
-            h.pop()
-        return h
 
     def est(self):
         rows = self.rows("Estimates")
@@ -873,13 +850,4 @@ def test_non_finite_loss_stops_with_a_message():
 
 
 if __name__ == "__main__":
-    if not os.access(ROWFIT, os.X_OK):
-        print("test_network.py: no rowfit at %s (set ROWFIT)" % ROWFIT)
-        print("0 passed, 1 failed")
-        sys.exit(1)
-    try:
-        rc = T.run(sys.argv[1:])
-    finally:
-        if os.environ.get("ROWFIT_KEEP_TMP") != "1":
-            shutil.rmtree(TMP, ignore_errors=True)
-    sys.exit(rc)
+    main(T, TMP)

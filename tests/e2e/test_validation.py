@@ -51,8 +51,8 @@ import warnings
 
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from common import (Runner, describe, is_num, main, make_dir, mann_whitney_auc,  # noqa: E402
-                    need_numpy, oracle, records, rel_err, rowfit, run_job,
+from common import (Runner, WorkbookRun, describe, is_num, main, make_dir, mann_whitney_auc,  # noqa: E402
+                    need_numpy, oracle, records, rel_err, rowfit,
                     strip_job, summary_measures, value, WB)
 import openpyxl  # noqa: E402  (common re-runs us under Debian's python3)
 
@@ -97,24 +97,8 @@ def digits(rel):
     return 16.0 if rel == 0 else -math.log10(rel)
 
 
-class Run:
+class Run(WorkbookRun):
     """One rowfit run and its workbook (cached values)."""
-
-    def __init__(self, d, job, out="result.xlsx", expect=0):
-        self.dir = d
-        self.proc, self.path = run_job(d, job, out, expect)
-        if expect != 0:
-            return
-        self.wb = openpyxl.load_workbook(self.path, data_only=True)
-
-    def rows(self, sheet):
-        return list(self.wb[sheet].iter_rows(values_only=True))
-
-    def head(self, sheet):
-        h = list(self.rows(sheet)[0])
-        while h and h[-1] is None:
-            h.pop()
-        return h
 
     def est(self):
         return [{k: value(c) for k, c in r.items()} for r in records(self.wb, "Estimates")]
@@ -1281,7 +1265,8 @@ def test_ridge_auto_on_collinear_inputs_picks_a_positive_penalty():
     v = run.validation()
     assert "ridge choice" in v["method"], "method %r" % v["method"]
     means = [r[1] for r in v["path"]]
-    ses = [r[2] for r in v["path"]]
+    assert all(is_num(r[2]) and r[2] >= 0 for r in v["path"]), "path standard errors %r" % (
+        [r[2] for r in v["path"]],)
     best = min(range(31), key=lambda g: (means[g], g))
     chosen = min(g for g in range(31) if means[g] <= means[best] * (1 + CHOOSE_TOL))
     assert chosen > 0 and rel_err(s["ridge"], v["path"][chosen][0]) <= 1e-12, \
@@ -1330,7 +1315,8 @@ def test_logistic_ridge_auto_on_applicants_demo():
     assert path[0][0] == 0 and all(rel_err(r[0], grid[g]) <= 1e-12 for g, r in enumerate(path) if g), \
         "path penalties are not ridge.h's grid for %d rows" % n
     means = [r[1] for r in path]
-    ses = [r[2] for r in path]
+    assert all(is_num(r[2]) and r[2] >= 0 for r in path), "path standard errors %r" % (
+        [r[2] for r in path],)
     assert all(is_num(m) and m > 0 for m in means), "path log losses %r" % means
     best = min(range(31), key=lambda g: (means[g], g))
     chosen = min(g for g in range(31) if means[g] <= means[best] * (1 + CHOOSE_TOL))
