@@ -14,9 +14,9 @@ OPT      ?= -O2
 SANITIZE ?= 0
 
 WARN    := -Wall -Wextra -Wpedantic -Wshadow -Wwrite-strings
-CFLAGS  += -std=c11 $(OPT) -g $(WARN) -D_POSIX_C_SOURCE=200809L \
+CFLAGS  += -std=c11 $(OPT) -g $(WARN) -pthread -D_POSIX_C_SOURCE=200809L \
            -DROWFIT_VERSION='"$(VERSION)"'
-LDLIBS  := -lxlsxwriter -lfreexl -lgsl -lopenblas -lminizip -lexpat -lz -lnettle -lm
+LDLIBS  := -pthread -lxlsxwriter -lfreexl -lgsl -lopenblas -lminizip -lexpat -lz -lnettle -lm
 
 ifeq ($(SANITIZE),1)
 BUILD   := build-san
@@ -172,7 +172,7 @@ $(BUILD)/bench_net: tests/bench_net.c $(LIB_OBJ)
 	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS)
 
 bench-net: $(BUILD)/bench_net
-	$(BUILD)/bench_net --rows $${NET_ROWS:-100000} --epochs $${NET_EPOCHS:-20}
+	$(BUILD)/bench_net --rows $${NET_ROWS:-100000} --epochs $${NET_EPOCHS:-40}
 
 bench: all bench-readers bench-cv bench-net
 	@sh tests/bench.sh

@@ -20,6 +20,13 @@
 #include <gsl/gsl_rng.h>
 
 #include "job.h"
+#include "team.h"
+
+/* OpenBLAS's own thread control, declared in its cblas.h, which cannot be
+ * included beside GSL's gsl_cblas.h (the two define the same enums); the
+ * program links OpenBLAS by name (Makefile). */
+void openblas_set_num_threads(int threads);
+int openblas_get_num_threads(void);
 
 _Static_assert(NETWORK_HIDDEN_MAX == JOB_HIDDEN_MAX,
                "network.h and job.h disagree on the hidden layers");
@@ -199,29 +206,51 @@ static size_t layer_offset(const size_t *units, size_t l)
     return off;
 }
 
-struct network_work {
-    size_t rows, n_layers;
+/* One lane of a pass (network.h, NETWORK_LANES): its own activations,
+ * deltas and gradient, so that lanes on different threads never write the
+ * same memory. */
+typedef struct lane {
     double *act[LAYERS_MAX + 1];  /* act[l], l >= 1: rows x units[l];
                                      act[n_layers] holds the output unit's
                                      input z */
     double *delta[2];             /* rows x the widest layer */
+    double *ones;                 /* rows ones: column sums by dgemv */
+    double *grad;                 /* nw: the lane's summed gradient */
     double *wt;                   /* every W[l] transposed (units[l] x
                                      units[l+1]), layer after layer */
-    double *ones;                 /* rows ones: column sums by dgemv */
-    double *tile;                 /* TANH_LANES rows of a layer's biases */
+    double *tile;                 /* TANH_LANES rows of each hidden layer's
+                                     biases, layer after layer */
+    double *gz, *gt;              /* a block of gathered rows and targets */
+    long double loss;             /* the lane's summed loss */
+} lane;
+
+/* The lanes' copies of the weights are their own, not shared: a shared
+ * copy written for every Adam batch by one thread moved its cache lines
+ * to the others' caches each time, which cost the threads a fifth of
+ * their speed in tests/bench_net.c. */
+struct network_work {
+    size_t rows, n_layers, nw;
+    lane lane[NETWORK_LANES];
+    team *team;                   /* NULL: the lanes run one by one */
 };
 
 void network_work_free(network_work *w)
 {
     if (w == NULL)
         return;
-    for (size_t l = 0; l <= LAYERS_MAX; l++)
-        free(w->act[l]);
-    free(w->delta[0]);
-    free(w->delta[1]);
-    free(w->wt);
-    free(w->ones);
-    free(w->tile);
+    for (size_t k = 0; k < NETWORK_LANES; k++) {
+        lane *ln = &w->lane[k];
+        for (size_t l = 0; l <= LAYERS_MAX; l++)
+            free(ln->act[l]);
+        free(ln->delta[0]);
+        free(ln->delta[1]);
+        free(ln->ones);
+        free(ln->grad);
+        free(ln->wt);
+        free(ln->tile);
+        free(ln->gz);
+        free(ln->gt);
+    }
     free(w);
 }
 
@@ -235,25 +264,40 @@ network_work *network_work_alloc(size_t n_layers, const size_t *units,
         return NULL;
     w->rows = rows;
     w->n_layers = n_layers;
-    size_t widest = 1, nwt = 0;
+    w->nw = layer_offset(units, n_layers);
+    size_t widest = 1, nwt = 0, hidden = 0;
     for (size_t l = 1; l <= n_layers; l++) {
         if (units[l] > widest)
             widest = units[l];
         nwt += units[l] * units[l - 1];
-        w->act[l] = malloc(rows * units[l] * sizeof(double));
-        if (w->act[l] == NULL)
-            goto fail;
+        if (l < n_layers)
+            hidden += units[l];
     }
-    w->delta[0] = malloc(rows * widest * sizeof(double));
-    w->delta[1] = malloc(rows * widest * sizeof(double));
-    w->wt = malloc((nwt > 0 ? nwt : 1) * sizeof(double));
-    w->ones = malloc(rows * sizeof(double));
-    w->tile = malloc(TANH_LANES * widest * sizeof(double));
-    if (w->delta[0] == NULL || w->delta[1] == NULL || w->wt == NULL
-        || w->ones == NULL || w->tile == NULL)
-        goto fail;
-    for (size_t i = 0; i < rows; i++)
-        w->ones[i] = 1;
+    for (size_t k = 0; k < NETWORK_LANES; k++) {
+        lane *ln = &w->lane[k];
+        ln->wt = malloc((nwt > 0 ? nwt : 1) * sizeof(double));
+        ln->tile = malloc((TANH_LANES * hidden > 0 ? TANH_LANES * hidden : 1)
+                          * sizeof(double));
+        if (ln->wt == NULL || ln->tile == NULL)
+            goto fail;
+        for (size_t l = 1; l <= n_layers; l++) {
+            ln->act[l] = malloc(rows * units[l] * sizeof(double));
+            if (ln->act[l] == NULL)
+                goto fail;
+        }
+        ln->delta[0] = malloc(rows * widest * sizeof(double));
+        ln->delta[1] = malloc(rows * widest * sizeof(double));
+        ln->ones = malloc(rows * sizeof(double));
+        ln->grad = malloc(w->nw * sizeof(double));
+        ln->gz = malloc((rows * units[0] > 0 ? rows * units[0] : 1)
+                        * sizeof(double));
+        ln->gt = malloc(rows * sizeof(double));
+        if (ln->delta[0] == NULL || ln->delta[1] == NULL || ln->ones == NULL
+            || ln->grad == NULL || ln->gz == NULL || ln->gt == NULL)
+            goto fail;
+        for (size_t i = 0; i < rows; i++)
+            ln->ones[i] = 1;
+    }
     return w;
 fail:
     network_work_free(w);
@@ -300,45 +344,82 @@ static void tanh_slope(double *restrict dp, const double *restrict a,
         dp[i] *= 1 - a[i] * a[i];
 }
 
-/* Copies each layer's W (units[l+1] x units[l]) transposed into w->wt, so
- * that the forward product is in W' with both operands untransposed:
- * OpenBLAS 0.3.21 ran that form 1.6 times as fast as in times W
- * transposed on the 128 x 20 x 16 and 512 x 20 x 16 products of
- * tests/bench_net.c. */
-static void transpose_weights(size_t L, const size_t *units,
-                              const double *theta, network_work *w)
+/* dp[i ni + j] = d[i] w[j] (1 - a[i ni + j]^2) for i < rows, j < ni: the
+ * deltas below a single output unit; and gb[j] += the column sums of dp,
+ * row by row, the bias gradient of that layer, in the same pass. As
+ * tanh_slope, the same bits from every clone (one operation order, no
+ * contraction). */
+__attribute__((target_clones("avx512f", "avx2", "default")))
+static void outer_slope(double *restrict dp, double *restrict gb,
+                        const double *restrict d, const double *restrict w,
+                        const double *restrict a, size_t rows, size_t ni)
+{
+    for (size_t i = 0; i < rows; i++) {
+        const double di = d[i];
+        double *restrict o = dp + i * ni;
+        const double *restrict x = a + i * ni;
+        size_t j = 0;
+        for (; j + TANH_LANES <= ni; j += TANH_LANES) {
+            tanh_vd wv, xv, g;
+            memcpy(&wv, w + j, sizeof wv);
+            memcpy(&xv, x + j, sizeof xv);
+            memcpy(&g, gb + j, sizeof g);
+            tanh_vd r = (di * wv) * (1 - xv * xv);
+            g += r;
+            memcpy(o + j, &r, sizeof r);
+            memcpy(gb + j, &g, sizeof g);
+        }
+        for (; j < ni; j++) {
+            o[j] = (di * w[j]) * (1 - x[j] * x[j]);
+            gb[j] += o[j];
+        }
+    }
+}
+
+/* A lane's copy of the weights, built by the lane at the start of a
+ * pass: each layer's W transposed into ln->wt, so that the forward product is in W' with both
+ * operands untransposed (OpenBLAS 0.3.21 ran that form 1.6 times as fast
+ * as in times W transposed on the 128 x 20 x 16 and 512 x 20 x 16
+ * products of tests/bench_net.c), and TANH_LANES rows of each hidden
+ * layer's biases for tanh_block. */
+static void lane_weights(size_t L, const size_t *units, const double *theta,
+                         lane *ln)
 {
     const double *th = theta;
-    double *wt = w->wt;
+    double *wt = ln->wt, *tile = ln->tile;
     for (size_t l = 0; l < L; l++) {
         size_t ni = units[l], no = units[l + 1];
         for (size_t j = 0; j < no; j++)
             for (size_t k = 0; k < ni; k++)
                 wt[k * no + j] = th[j * ni + k];
+        if (l + 1 < L) {
+            for (size_t i = 0; i < TANH_LANES; i++)
+                memcpy(tile + i * no, th + no * ni, no * sizeof *th);
+            tile += TANH_LANES * no;
+        }
         wt += ni * no;
         th += no * ni + no;
     }
 }
 
-/* Forward pass of rows rows of Z (rows x units[0]) into w->act, with the
- * weights transposed in w->wt (transpose_weights). */
+/* Forward pass of rows rows of Z (rows x units[0]) into ln->act, with the
+ * lane's weights of lane_weights. */
 static void forward(size_t L, const size_t *units, const double *theta,
-                    const double *Z, size_t rows, network_work *w)
+                    const double *Z, size_t rows, lane *ln)
 {
     const double *in = Z;
-    const double *th = theta, *wt = w->wt;
+    const double *th = theta, *wt = ln->wt, *tile = ln->tile;
     for (size_t l = 0; l < L; l++) {
         size_t ni = units[l], no = units[l + 1];
         const double *b = th + no * ni;
-        double *out = w->act[l + 1];
+        double *out = ln->act[l + 1];
         if (l + 1 < L) {
             /* out = tanh(in W' + 1 b'), the bias added in tanh_block's
              * pass from TANH_LANES rows of it */
-            for (size_t i = 0; i < TANH_LANES; i++)
-                memcpy(w->tile + i * no, b, no * sizeof *b);
             gemm(CblasNoTrans, CblasNoTrans, rows, no, ni, in, ni, wt, no,
                  0.0, out, no);
-            tanh_block(out, rows * no, w->tile, TANH_LANES * no);
+            tanh_block(out, rows * no, tile, TANH_LANES * no);
+            tile += TANH_LANES * no;
         } else {
             /* the output layer, no tanh: out = 1 b' + in W', the bias
              * rows first, then beta = 1; for the one output unit of
@@ -360,29 +441,88 @@ static void forward(size_t L, const size_t *units, const double *theta,
     }
 }
 
-double network_loss_grad(size_t L, const size_t *units, int classify,
-                         const double *theta, const double *Z,
-                         const double *t, size_t n, double lambda,
-                         double *grad, double *mean_loss, network_work *w)
+/* A pass over n rows Z (n x units[0]) with targets t; or, when idx is
+ * not NULL, over rows idx[0..n-1] of them, which the lanes gather a block
+ * at a time. */
+typedef struct pass {
+    size_t L;
+    const size_t *units;
+    int classify, want_grad;
+    const double *theta;
+    const double *Z, *t;
+    const uint32_t *idx;
+    size_t n, lanes;
+    network_work *w;
+} pass;
+
+/* Rows ahead that a gathering lane asks the memory for while it copies
+ * one (common practice: enough to cover a memory access). */
+#define GATHER_AHEAD 32
+
+/* ln->gz, ln->gt = rows idx[0..rows-1] of Z and t (q values a row). The
+ * rows are scattered over all the data, so each is fetched from memory;
+ * the copy is a vector at a time (a call to memcpy a row cost more). */
+static void gather(lane *ln, const double *Z, const double *t,
+                   const uint32_t *idx, size_t rows, size_t q)
 {
-    size_t nw = layer_offset(units, L);
-    if (grad != NULL)
-        memset(grad, 0, nw * sizeof *grad);
+    for (size_t i = 0; i < rows; i++) {
+        if (i + GATHER_AHEAD < rows) {
+            const double *ahead = Z + (size_t)idx[i + GATHER_AHEAD] * q;
+            for (size_t c = 0; c < q; c += 8)
+                __builtin_prefetch(ahead + c);
+            __builtin_prefetch(t + idx[i + GATHER_AHEAD]);
+        }
+        const double *src = Z + (size_t)idx[i] * q;
+        double *dst = ln->gz + i * q;
+        size_t c = 0;
+        for (; c + TANH_LANES <= q; c += TANH_LANES) {
+            tanh_vd v;
+            memcpy(&v, src + c, sizeof v);
+            memcpy(dst + c, &v, sizeof v);
+        }
+        for (; c < q; c++)
+            dst[c] = src[c];
+        ln->gt[i] = t[idx[i]];
+    }
+}
+
+/* Lanes of a pass of n rows: a function of n alone (network.h). */
+static size_t lanes_for(size_t n)
+{
+    size_t k = (n + NETWORK_LANE_ROWS / 2) / NETWORK_LANE_ROWS;
+    return k < 1 ? 1 : k > NETWORK_LANES ? NETWORK_LANES : k;
+}
+
+/* Lane k of a pass: its rows n k / lanes to n (k + 1) / lanes - 1, in
+ * blocks of w->rows, into the lane's loss and (want_grad) gradient. */
+static void lane_pass(const pass *p, size_t k)
+{
+    network_work *w = p->w;
+    lane *ln = &w->lane[k];
+    const size_t L = p->L, *units = p->units, q = units[0];
+    const size_t a = p->n * k / p->lanes, b = p->n * (k + 1) / p->lanes;
+    lane_weights(L, units, p->theta, ln);
+    if (p->want_grad)
+        memset(ln->grad, 0, w->nw * sizeof *ln->grad);
     long double sum = 0;
-    size_t q = units[0];
-    transpose_weights(L, units, theta, w);
-    for (size_t r0 = 0; r0 < n; r0 += w->rows) {
-        size_t rows = n - r0 < w->rows ? n - r0 : w->rows;
-        const double *Zb = Z + r0 * q;
-        const double *tb = t + r0;
-        forward(L, units, theta, Zb, rows, w);
-        const double *z = w->act[L];
-        double *d = w->delta[0];
+    for (size_t r0 = 0; r0 < b - a; r0 += w->rows) {
+        size_t rows = b - a - r0 < w->rows ? b - a - r0 : w->rows;
+        const double *Zb = p->Z + (a + r0) * q, *tb = p->t + a + r0;
+        if (p->idx != NULL) {
+            gather(ln, p->Z, p->t, p->idx + a + r0, rows, q);
+            Zb = ln->gz;
+            tb = ln->gt;
+        }
+        forward(L, units, p->theta, Zb, rows, ln);
+        const double *z = ln->act[L];
+        double *d = ln->delta[0];
         /* loss, and the output delta d loss / d z: out - t for both the
          * squared error of a linear unit and the log loss of a logistic
-         * one (the canonical link) */
+         * one (the canonical link); their sum is the output bias's
+         * gradient */
+        double dsum = 0;
         for (size_t i = 0; i < rows; i++) {
-            if (classify) {
+            if (p->classify) {
                 sum += softplus(z[i]) - tb[i] * z[i];
                 d[i] = sigmoid(z[i]) - tb[i];
             } else {
@@ -390,31 +530,97 @@ double network_loss_grad(size_t L, const size_t *units, int classify,
                 sum += 0.5 * e * e;
                 d[i] = e;
             }
+            dsum += d[i];
         }
-        if (grad == NULL)
+        if (!p->want_grad)
             continue;
+        /* the layer whose bias gradient is already summed: the output's
+         * (one unit, network.h), then any made by outer_slope */
+        size_t summed = L - 1;
+        ln->grad[w->nw - 1] += dsum;
         /* backpropagation: layer by layer down, d holding d loss / d (the
          * layer's pre-activation), rows x units[l+1] */
         for (size_t l = L; l-- > 0;) {
             size_t ni = units[l], no = units[l + 1];
-            double *gW = grad + layer_offset(units, l), *gb = gW + no * ni;
-            const double *W = theta + layer_offset(units, l);
-            const double *a = l == 0 ? Zb : w->act[l];
-            gemm(CblasTrans, CblasNoTrans, no, ni, rows, d, no, a, ni, 1.0,
-                 gW, ni);
+            double *gW = ln->grad + layer_offset(units, l), *gb = gW + no * ni;
+            const double *W = p->theta + layer_offset(units, l);
+            const double *act = l == 0 ? Zb : ln->act[l];
+            /* gW += d' act; for the one output unit a matrix-vector
+             * product, which dgemv runs faster than dgemm a 1-row one */
+            if (no == 1 && ni > 0)
+                cblas_dgemv(CblasRowMajor, CblasTrans, (int)rows, (int)ni,
+                            1.0, act, (int)ni, d, 1, 1.0, gW, 1);
+            else
+                gemm(CblasTrans, CblasNoTrans, no, ni, rows, d, no, act, ni,
+                     1.0, gW, ni);
             /* gb += d' 1, the bias gradient as a column sum */
-            cblas_dgemv(CblasRowMajor, CblasTrans, (int)rows, (int)no, 1.0,
-                        d, (int)no, w->ones, 1, 1.0, gb, 1);
+            if (l != summed)
+                cblas_dgemv(CblasRowMajor, CblasTrans, (int)rows, (int)no,
+                            1.0, d, (int)no, ln->ones, 1, 1.0, gb, 1);
             if (l == 0)
                 break;
-            /* d_prev = (d W) .* (1 - a^2), tanh' = 1 - tanh^2 */
-            double *dp = d == w->delta[0] ? w->delta[1] : w->delta[0];
-            gemm(CblasNoTrans, CblasNoTrans, rows, ni, no, d, no, W, ni, 0.0,
-                 dp, ni);
-            tanh_slope(dp, a, rows * ni);
+            /* d_prev = (d W) .* (1 - a^2), tanh' = 1 - tanh^2; below a
+             * single unit d W is an outer product, no sum to form, so it
+             * is made in the same pass as the slope and the layer's bias
+             * gradient */
+            double *dp = d == ln->delta[0] ? ln->delta[1] : ln->delta[0];
+            if (no == 1) {
+                double *gb_prev = ln->grad + layer_offset(units, l - 1)
+                                  + ni * units[l - 1];
+                outer_slope(dp, gb_prev, d, W, act, rows, ni);
+                summed = l - 1;
+            } else {
+                gemm(CblasNoTrans, CblasNoTrans, rows, ni, no, d, no, W, ni,
+                     0.0, dp, ni);
+                tanh_slope(dp, act, rows * ni);
+            }
             d = dp;
         }
     }
+    ln->loss = sum;
+}
+
+/* Member `member` of a team of `size` takes lanes member, member + size,
+ * ...: which thread runs a lane never changes what the lane computes. */
+static void lane_run(void *ctx, size_t member, size_t size)
+{
+    const pass *p = ctx;
+    for (size_t k = member; k < p->lanes; k += size)
+        lane_pass(p, k);
+}
+
+/* Runs pass p and returns the objective as network_loss_grad: the lanes'
+ * sums are added in lane order, whatever ran them. */
+/* Runs the lanes of pass p; the sums are then in w->lane[0 .. lanes-1]. */
+static void run_lanes(pass *p, int want_grad)
+{
+    p->want_grad = want_grad;
+    p->lanes = lanes_for(p->n);
+    if (p->lanes == 1)
+        lane_pass(p, 0);
+    else
+        team_run(p->w->team, lane_run, p);
+}
+
+static double run_pass(pass *p, double lambda, double *grad,
+                       double *mean_loss)
+{
+    network_work *w = p->w;
+    const size_t L = p->L, *units = p->units, nw = w->nw;
+    run_lanes(p, grad != NULL);
+    long double sum = 0;
+    for (size_t k = 0; k < p->lanes; k++)
+        sum += w->lane[k].loss;
+    if (grad != NULL) {
+        memcpy(grad, w->lane[0].grad, nw * sizeof *grad);
+        for (size_t k = 1; k < p->lanes; k++) {
+            const double *g = w->lane[k].grad;
+            for (size_t i = 0; i < nw; i++)
+                grad[i] += g[i];
+        }
+    }
+    const double *theta = p->theta;
+    size_t n = p->n;
     double loss = (double)(sum / n);
     if (mean_loss != NULL)
         *mean_loss = loss;
@@ -436,6 +642,14 @@ double network_loss_grad(size_t L, const size_t *units, int classify,
     return loss + 0.5 * lambda * (double)pen;
 }
 
+double network_loss_grad(size_t L, const size_t *units, int classify,
+                         const double *theta, const double *Z,
+                         const double *t, size_t n, double lambda,
+                         double *grad, double *mean_loss, network_work *w)
+{
+    pass p = { L, units, classify, 0, theta, Z, t, NULL, n, 1, w };
+    return run_pass(&p, lambda, grad, mean_loss);
+}
 /* ------------------------------------------------------------ the model */
 
 void network_free(network_model *m)
@@ -452,6 +666,14 @@ void network_free(network_model *m)
     free(m->restart_loss);
     free(m->holdout);
     free(m);
+}
+
+size_t network_batch(size_t n_train)
+{
+    size_t b = NETWORK_BATCH;
+    while (b < NETWORK_BATCH_MAX && n_train / (2 * b) >= NETWORK_BATCH_STEPS)
+        b *= 2;
+    return b;
 }
 
 size_t network_weights(const network_model *m)
@@ -530,9 +752,18 @@ typedef struct fit_ws {
     double *theta, *best, *grad, *g2, *cand, *dir;  /* nw each */
     double *S, *Y, *rho, *alpha;   /* L-BFGS memory */
     double *mo, *vo;               /* Adam moments */
-    double *Zb, *tb;               /* Adam batch */
-    size_t *order;                 /* n_train */
-    gsl_rng *rng;
+    unsigned char *is_weight;      /* Adam: nw, 1 for a weight, 0 a bias */
+    uint32_t *order;               /* Adam: n_train, the epoch's batches
+                                      one after another */
+    uint32_t *batch_of;            /* n_train: each row's batch */
+    size_t n_batches;
+    size_t *count;                 /* NETWORK_LANES x n_batches */
+    size_t *first;                 /* n_batches + 1 */
+    gsl_rng *part_rng[NETWORK_LANES];
+    team *team;                    /* NULL: one thread */
+    int blas_threads;              /* OpenBLAS's threads to restore, or 0 */
+    gsl_rng *rng;                  /* held-out draw, start weights */
+    gsl_rng *mix;                  /* Adam's epoch seeds (taus2) */
     const network_options *o;
 } fit_ws;
 
@@ -730,48 +961,160 @@ static rf_status run_lbfgs(fit_ws *f, const network_model *m, double rate,
     return RF_OK;
 }
 
+/* A uniform integer in [0, s), s >= 1, from r's 32-bit output by
+ * Lemire's multiply-and-shift with rejection (Lemire, "Fast random integer
+ * generation in an interval", ACM TOMACS 29 (2019) 1, Algorithm 5):
+ * unbiased like gsl_rng_uniform_int, without its divisions (which made
+ * drawing a sixth of an Adam epoch in tests/bench_net.c). r has a 32-bit
+ * output (taus2 here). */
+static uint32_t below(gsl_rng *r, uint32_t s)
+{
+    uint64_t m = (uint64_t)(uint32_t)gsl_rng_get(r) * s;
+    uint32_t low = (uint32_t)m;
+    if (low < s) {
+        uint32_t t = (uint32_t)(-s) % s;
+        while (low < t) {
+            m = (uint64_t)(uint32_t)gsl_rng_get(r) * s;
+            low = (uint32_t)m;
+        }
+    }
+    return (uint32_t)(m >> 32);
+}
+
+/* The deal of an Adam epoch: every training row goes to one of
+ * f->n_batches batches drawn uniformly at random, and the batches are laid
+ * out one after another in f->Zs, f->ts. Drawing each row's batch
+ * independently and uniformly makes every batch a random subset of the
+ * rows, each row used once an epoch, as a shuffle cut into pieces would;
+ * it is the first step of Rao's and Sandelius's random permutation
+ * (Sandelius, Ann. Math. Statist. 33 (1962) 1537), the order within a
+ * batch being irrelevant to its gradient. Batch sizes vary (binomially,
+ * about n_train / n_batches). Unlike a shuffle it runs in parallel: the rows are cut into parts as a pass cuts them
+ * into lanes (lanes_for), each part draws from its own stream seeded from
+ * the epoch's seed and the part, so the deal does not depend on the
+ * threads; and a batch's rows, ascending within a part, are gathered
+ * from memory in address order. */
+typedef struct deal {
+    fit_ws *f;
+    size_t parts;
+    unsigned long seed;   /* the epoch's */
+} deal;
+
+static void deal_count(void *ctx, size_t member, size_t size)
+{
+    const deal *d = ctx;
+    fit_ws *f = d->f;
+    const size_t B = f->n_batches, n = f->n_train;
+    for (size_t k = member; k < d->parts; k += size) {
+        gsl_rng *r = f->part_rng[k];
+        gsl_rng_set(r, mix_seed(d->seed, k));
+        size_t *count = f->count + k * B;
+        memset(count, 0, B * sizeof *count);
+        for (size_t i = n * k / d->parts; i < n * (k + 1) / d->parts; i++) {
+            uint32_t b = below(r, (uint32_t)B);
+            f->batch_of[i] = b;
+            count[b]++;
+        }
+    }
+}
+
+static void deal_place(void *ctx, size_t member, size_t size)
+{
+    const deal *d = ctx;
+    fit_ws *f = d->f;
+    const size_t B = f->n_batches, n = f->n_train;
+    for (size_t k = member; k < d->parts; k += size) {
+        size_t *at = f->count + k * B;   /* now the next free place */
+        for (size_t i = n * k / d->parts; i < n * (k + 1) / d->parts; i++)
+            f->order[at[f->batch_of[i]]++] = (uint32_t)i;
+    }
+}
+
+/* Deals the training rows for one epoch (above): batch b is then rows
+ * f->order[f->first[b] .. f->first[b + 1] - 1], ascending within each
+ * part, and f->first[n_batches] = n_train. */
+static void deal_rows(fit_ws *f)
+{
+    const size_t B = f->n_batches;
+    deal d = { f, lanes_for(f->n_train), gsl_rng_get(f->mix) };
+    team_run(f->team, deal_count, &d);
+    /* part k's rows of batch b follow part k - 1's */
+    size_t at = 0;
+    for (size_t b = 0; b < B; b++) {
+        f->first[b] = at;
+        for (size_t k = 0; k < d.parts; k++) {
+            size_t c = f->count[k * B + b];
+            f->count[k * B + b] = at;
+            at += c;
+        }
+    }
+    f->first[B] = at;
+    team_run(f->team, deal_place, &d);
+}
+
+/* One Adam update from the lanes' sums of a batch of `rows` rows, each
+ * weight's gradient formed as run_pass forms it (the lanes added in lane
+ * order, over the rows, plus the penalty's for a weight, not a bias), in
+ * one pass over the weights. On the calling thread: given to the team as
+ * slices of the weights, it ran slower in tests/bench_net.c (the slices'
+ * cache lines moved between the threads every batch). */
+typedef struct adam_step {
+    fit_ws *f;
+    size_t lanes, rows;
+    double a;   /* the step of Kingma & Ba, sec. 2 */
+} adam_step;
+
+static void adam_update(const adam_step *st)
+{
+    fit_ws *f = st->f;
+    const network_work *w = f->w;
+    for (size_t i = 0; i < f->nw; i++) {
+        double g = w->lane[0].grad[i];
+        for (size_t k = 1; k < st->lanes; k++)
+            g += w->lane[k].grad[i];
+        g = g / (double)st->rows;
+        if (f->is_weight[i])
+            g += f->lambda * f->theta[i];
+        f->mo[i] = ADAM_B1 * f->mo[i] + (1 - ADAM_B1) * g;
+        f->vo[i] = ADAM_B2 * f->vo[i] + (1 - ADAM_B2) * g * g;
+        f->theta[i] -= st->a * f->mo[i] / (sqrt(f->vo[i]) + ADAM_EPS);
+    }
+}
+
 /* Mini-batch Adam from f->theta (Kingma & Ba, ICLR 2015, Algorithm 1),
- * the rows shuffled every epoch with f->rng. */
+ * the rows dealt into batches afresh every epoch (deal_rows). */
 static rf_status run_adam(fit_ws *f, const network_model *m, double rate,
                           long cap, run_result *res, rf_error *err)
 {
-    const size_t nw = f->nw, q = f->q;
+    const size_t nw = f->nw;
     memset(f->mo, 0, nw * sizeof *f->mo);
     memset(f->vo, 0, nw * sizeof *f->vo);
-    for (size_t i = 0; i < f->n_train; i++)
-        f->order[i] = i;
     tracker k = { INFINITY, INFINITY, 0, NETWORK_PATIENCE_ADAM };
     track(f, &k, f->theta, valid_loss(f, f->theta));
     double b1t = 1, b2t = 1;
     res->stop = NETWORK_EPOCHS;
     res->epochs = 0;
     for (long ep = 1; ep <= cap; ep++) {
-        gsl_ran_shuffle(f->rng, f->order, f->n_train, sizeof *f->order);
+        deal_rows(f);
         long double epoch_loss = 0;
-        for (size_t r0 = 0; r0 < f->n_train; r0 += NETWORK_BATCH) {
-            size_t rows = f->n_train - r0 < NETWORK_BATCH ? f->n_train - r0
-                                                          : NETWORK_BATCH;
-            for (size_t i = 0; i < rows; i++) {
-                size_t r = f->order[r0 + i];
-                memcpy(f->Zb + i * q, f->Zt + r * q, q * sizeof *f->Zb);
-                f->tb[i] = f->tt[r];
-            }
-            double lb;
-            double fb = network_loss_grad(f->L, f->units, f->classify,
-                                          f->theta, f->Zb, f->tb, rows,
-                                          f->lambda, f->grad, &lb, f->w);
-            if (!isfinite(fb))
+        for (size_t b = 0; b < f->n_batches; b++) {
+            size_t r0 = f->first[b], rows = f->first[b + 1] - r0;
+            if (rows == 0)
+                continue;
+            pass bp = { f->L, f->units, f->classify, 0, f->theta, f->Zt,
+                        f->tt, f->order + r0, rows, 1, f->w };
+            run_lanes(&bp, 1);
+            long double sum = 0;
+            for (size_t j = 0; j < bp.lanes; j++)
+                sum += f->w->lane[j].loss;
+            if (!isfinite((double)sum))
                 return nonfinite(err, ep, rate);
-            epoch_loss += (long double)lb * rows;
+            epoch_loss += sum;
             b1t *= ADAM_B1;
             b2t *= ADAM_B2;
-            double a = rate * sqrt(1 - b2t) / (1 - b1t);  /* sec. 2 */
-            for (size_t i = 0; i < nw; i++) {
-                double g = f->grad[i];
-                f->mo[i] = ADAM_B1 * f->mo[i] + (1 - ADAM_B1) * g;
-                f->vo[i] = ADAM_B2 * f->vo[i] + (1 - ADAM_B2) * g * g;
-                f->theta[i] -= a * f->mo[i] / (sqrt(f->vo[i]) + ADAM_EPS);
-            }
+            adam_step st = { f, bp.lanes, rows,
+                             rate * sqrt(1 - b2t) / (1 - b1t) };
+            adam_update(&st);
         }
         for (size_t i = 0; i < nw; i++)
             if (!isfinite(f->theta[i]))
@@ -847,6 +1190,9 @@ static rf_status check_options(const network_options *o, rf_error *err)
 /* Frees what fit_ws owns (not the model). */
 static void ws_free(fit_ws *f)
 {
+    team_free(f->team);
+    if (f->blas_threads > 0)
+        openblas_set_num_threads(f->blas_threads);
     network_work_free(f->w);
     free(f->theta);
     free(f->best);
@@ -860,11 +1206,18 @@ static void ws_free(fit_ws *f)
     free(f->alpha);
     free(f->mo);
     free(f->vo);
-    free(f->Zb);
-    free(f->tb);
     free(f->order);
+    free(f->is_weight);
+    free(f->batch_of);
+    free(f->count);
+    free(f->first);
+    for (size_t k = 0; k < NETWORK_LANES; k++)
+        if (f->part_rng[k] != NULL)
+            gsl_rng_free(f->part_rng[k]);
     if (f->rng != NULL)
         gsl_rng_free(f->rng);
+    if (f->mix != NULL)
+        gsl_rng_free(f->mix);
 }
 
 rf_status network_fit(const long double *X, const double *y, size_t n,
@@ -936,10 +1289,11 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
     m->holdout = malloc((n_hold ? n_hold : 1) * sizeof *m->holdout);
     held = calloc(n, 1);
     f.rng = gsl_rng_alloc(gsl_rng_mt19937);
+    f.mix = gsl_rng_alloc(gsl_rng_taus2);
     if (m->units == NULL || m->W == NULL || m->b == NULL
         || m->in_mean == NULL || m->in_scale == NULL || m->col == NULL
         || m->restart_loss == NULL || m->holdout == NULL || held == NULL
-        || f.rng == NULL)
+        || f.rng == NULL || f.mix == NULL)
         goto fail;
 
     /* 1. the held-out rows: a simple random sample drawn with the seed,
@@ -1054,16 +1408,47 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
     f.grad = malloc(nw * sizeof *f.grad);
     if (f.w == NULL || f.theta == NULL || f.best == NULL || f.grad == NULL)
         goto fail;
+    size_t threads = o->threads > 0 ? o->threads : team_cores();
+    if (threads > lanes_for(f.n_train))
+        threads = lanes_for(f.n_train);
+    if (threads > 1) {
+        f.team = team_create(threads);
+        if (f.team == NULL)
+            goto fail;
+        f.w->team = f.team;
+        /* the team's threads are the parallelism: OpenBLAS starting its
+         * own inside each lane's small products would only compete */
+        if (team_size(f.team) > 1) {
+            f.blas_threads = openblas_get_num_threads();
+            openblas_set_num_threads(1);
+        }
+    }
     if (adam) {
-        size_t nb = f.n_train < NETWORK_BATCH ? f.n_train : NETWORK_BATCH;
+        m->batch = network_batch(f.n_train);
+        /* batches of m->batch rows on average, at least one */
+        f.n_batches = (f.n_train + m->batch / 2) / m->batch;
+        if (f.n_batches < 1)
+            f.n_batches = 1;
         f.mo = malloc(nw * sizeof *f.mo);
         f.vo = malloc(nw * sizeof *f.vo);
-        f.Zb = malloc((nb * q > 0 ? nb * q : 1) * sizeof *f.Zb);
-        f.tb = malloc(nb * sizeof *f.tb);
         f.order = malloc(f.n_train * sizeof *f.order);
-        if (f.mo == NULL || f.vo == NULL || f.Zb == NULL || f.tb == NULL
-            || f.order == NULL)
+        f.is_weight = malloc(nw);
+        f.batch_of = malloc(f.n_train * sizeof *f.batch_of);
+        f.count = malloc(NETWORK_LANES * f.n_batches * sizeof *f.count);
+        f.first = malloc((f.n_batches + 1) * sizeof *f.first);
+        if (f.mo == NULL || f.vo == NULL || f.order == NULL
+            || f.is_weight == NULL
+            || f.batch_of == NULL || f.count == NULL || f.first == NULL)
             goto fail;
+        for (size_t k = 0; k < NETWORK_LANES; k++)
+            if ((f.part_rng[k] = gsl_rng_alloc(gsl_rng_taus2)) == NULL)
+                goto fail;
+        for (size_t l = 0, i = 0; l < L; l++) {
+            size_t nwl = m->units[l + 1] * m->units[l];
+            memset(f.is_weight + i, 1, nwl);
+            memset(f.is_weight + i + nwl, 0, m->units[l + 1]);
+            i += nwl + m->units[l + 1];
+        }
     } else {
         f.g2 = malloc(nw * sizeof *f.g2);
         f.cand = malloc(nw * sizeof *f.cand);
@@ -1082,6 +1467,7 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
     double best = INFINITY;
     for (size_t r = 0; r < o->restarts; r++) {
         gsl_rng_set(f.rng, mix_seed(o->seed, r + 1));
+        gsl_rng_set(f.mix, mix_seed(o->seed, o->restarts + r + 1));
         glorot(m->units, L, f.theta, f.rng);
         run_result res = { NETWORK_EPOCHS, 0 };
         st = adam ? run_adam(&f, m, m->rate, m->epochs_cap, &res, err)

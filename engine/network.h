@@ -35,8 +35,14 @@
 #define NETWORK_ADAM_EPOCHS 200   /* default epoch cap of Adam */
 #define NETWORK_ADAM_RATE 0.001   /* Adam's default step (Kingma & Ba 2015,
                                      Algorithm 1) */
-#define NETWORK_BATCH 128         /* Adam's mini-batch rows (Kingma & Ba
-                                     2015 sec. 6 use 128) */
+/* Adam's mini-batch: NETWORK_BATCH rows (Kingma & Ba 2015, sec. 6, use
+ * 128), doubled while an epoch still makes NETWORK_BATCH_STEPS updates or
+ * more, up to NETWORK_BATCH_MAX (network_batch): on large data a batch of
+ * 1024 rows gives two threads a block of 512 rows each, and fifty updates
+ * an epoch, ten thousand in the default 200 epochs, are still many. */
+#define NETWORK_BATCH 128
+#define NETWORK_BATCH_MAX 1024
+#define NETWORK_BATCH_STEPS 50
 #define NETWORK_LBFGS_MEMORY 10   /* pairs kept; 3 to 20 is usual (Nocedal &
                                      Wright, 2nd ed., sec. 7.2) */
 /* Early stopping: the run stops when the held-out loss has not fallen
@@ -45,6 +51,19 @@
 #define NETWORK_PATIENCE_ADAM 10
 #define NETWORK_PATIENCE_LBFGS 50
 #define NETWORK_MIN_GAIN 1e-4
+/* Threads: every pass over the rows (a full pass or one of Adam's
+ * batches) is cut into lanes of consecutive rows, as many as the rows
+ * allow at NETWORK_LANE_ROWS a lane and at most NETWORK_LANES; each lane
+ * sums its own loss and gradient, and the lanes' sums are added in lane
+ * order. The cut depends on the rows alone, so one thread or several give
+ * the same bits; the threads (network_options.threads) share the lanes. */
+#define NETWORK_LANES 4           /* the most threads a fit can use: a
+                                     laptop's cores; each lane keeps its
+                                     own copy of the weights and gradient */
+#define NETWORK_LANE_ROWS 512     /* rows a lane, rounded: a lane is then a
+                                     whole block of a pass, the size at
+                                     which its products run near their rate
+                                     (tests/bench_net.c) */
 #define NETWORK_HOLDOUT 0.1       /* default share of rows held out */
 #define NETWORK_PERMUTATIONS 5    /* shuffles averaged per input group */
 
@@ -82,6 +101,9 @@ typedef struct network_options {
     size_t restarts;        /* fits from this many starts, >= 1 */
     double holdout;         /* share of rows held out, [0, 0.5]; 0: none
                                (no early stopping, no importance rows) */
+    size_t threads;         /* 0: the processors online; at most
+                               NETWORK_LANES are used either way. The
+                               weights do not depend on it. */
     network_progress progress;  /* may be NULL */
     void *progress_ctx;
 } network_options;
@@ -108,6 +130,7 @@ typedef struct network_model {
     network_stop stop;      /* why the kept restart stopped */
     long epochs;            /* epochs or iterations the kept restart ran */
     long epochs_cap;        /* the cap used */
+    size_t batch;           /* Adam's batch rows; 0 for L-BFGS */
     double rate;            /* the rate used */
     double ridge;
     double train_loss;      /* mean loss on the training rows at the kept
@@ -161,6 +184,9 @@ void network_free(network_model *m);  /* accepts NULL */
 /* The estimate for a row x (p values): the target's value, or the
  * probability of the positive class. No allocation. */
 double network_predict(const network_model *m, const long double *x);
+
+/* Adam's batch rows for n_train training rows (NETWORK_BATCH above). */
+size_t network_batch(size_t n_train);
 
 /* Weights and biases to fit: callers warn when the rows are few beside it. */
 size_t network_weights(const network_model *m);

@@ -1066,9 +1066,12 @@ static rf_status write_summary_network(writer *w, const job *j,
     trow(s, &r, "hidden", text, "units per hidden layer");
     srow(s, &r, "weights", (double)network_weights(net), WFMT_INTEGER,
          "weights and biases learned");
-    trow(s, &r, "solver", network_solver_str(net->solver),
-         net->solver == NETWORK_LBFGS
-         ? "full-batch L-BFGS (quasi-Newton)" : "mini-batch Adam");
+    if (net->solver == NETWORK_LBFGS)
+        snprintf(note, sizeof note, "full-batch L-BFGS (quasi-Newton)");
+    else
+        snprintf(note, sizeof note, "mini-batch Adam, the rows dealt at "
+                 "random into batches of about %zu every epoch", net->batch);
+    trow(s, &r, "solver", network_solver_str(net->solver), note);
     srow(s, &r, "epochs", (double)net->epochs, WFMT_INTEGER,
          net->solver == NETWORK_LBFGS ? "L-BFGS iterations of the kept "
          "restart" : "epochs of the kept restart");

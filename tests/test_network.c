@@ -74,22 +74,24 @@ static double objective_by_hand(size_t L, const size_t *units, int classify,
  * O(h^2) f''', Nocedal & Wright, 2nd ed., sec. 8.1, eq. 8.7) to a relative
  * 1e-6; entries below 1e-9 in size are compared absolutely, as rounding in
  * f (about 1e-16 f / h with h = 1e-5) is then of their order. The rows
- * cross three blocks of the workspace (7 rows each). */
-static void check_gradient(size_t L, const size_t *units, int classify,
-                           double lambda, unsigned long seed)
+ * cross blocks of the workspace (block rows each) and, from
+ * NETWORK_LANE_ROWS rows up, several lanes whose sums are added. */
+static void check_gradient_rows(size_t L, const size_t *units, int classify,
+                                double lambda, unsigned long seed, size_t n,
+                                size_t block)
 {
-    const size_t n = 20;
     gsl_rng *r = rng_new(seed);
     size_t nw = 0;
     for (size_t l = 0; l < L; l++)
         nw += units[l + 1] * units[l] + units[l + 1];
     double *theta = malloc(nw * sizeof *theta);
     double *grad = malloc(nw * sizeof *grad);
-    double *Z = malloc(n * units[0] * sizeof *Z);
-    double t[20];
+    double *Z = malloc((n * units[0] > 0 ? n * units[0] : 1) * sizeof *Z);
+    double *t = malloc(n * sizeof *t);
     assert_non_null(theta);
     assert_non_null(grad);
     assert_non_null(Z);
+    assert_non_null(t);
     for (size_t i = 0; i < nw; i++)
         theta[i] = 1.3 * (2 * gsl_rng_uniform(r) - 1);
     for (size_t i = 0; i < n * units[0]; i++)
@@ -97,7 +99,7 @@ static void check_gradient(size_t L, const size_t *units, int classify,
     for (size_t i = 0; i < n; i++)
         t[i] = classify ? (double)(gsl_rng_uniform(r) < 0.4)
                         : gsl_ran_gaussian(r, 1.0);
-    network_work *w = network_work_alloc(L, units, 7);
+    network_work *w = network_work_alloc(L, units, block);
     assert_non_null(w);
     double ml;
     double f0 = network_loss_grad(L, units, classify, theta, Z, t, n, lambda,
@@ -125,7 +127,27 @@ static void check_gradient(size_t L, const size_t *units, int classify,
     free(theta);
     free(grad);
     free(Z);
+    free(t);
     gsl_rng_free(r);
+}
+
+static void check_gradient(size_t L, const size_t *units, int classify,
+                           double lambda, unsigned long seed)
+{
+    check_gradient_rows(L, units, classify, lambda, seed, 20, 7);
+}
+
+/* The same checks where a pass is cut into lanes: 2 lanes at 1,100 rows,
+ * 4 at 2,100 (NETWORK_LANE_ROWS 512), blocks of 300 rows within each. */
+static void test_network_gradient_over_lanes(void **state)
+{
+    (void)state;
+    assert_int_equal(NETWORK_LANE_ROWS, 512);
+    const size_t one[3] = { 3, 4, 1 }, two[4] = { 3, 5, 4, 1 };
+    for (int classify = 0; classify <= 1; classify++) {
+        check_gradient_rows(2, one, classify, 0.21, 41 + classify, 1100, 300);
+        check_gradient_rows(3, two, classify, 0, 51 + classify, 2100, 300);
+    }
 }
 
 static void test_network_gradient_matches_finite_differences(void **state)
@@ -523,6 +545,119 @@ static void test_network_chooses_the_solver_by_size(void **state)
     gsl_rng_free(r);
 }
 
+/* The weights do not depend on the threads (network.h, NETWORK_LANES):
+ * one, two and four threads give the same bits for both solvers, on rows
+ * enough for several lanes a pass (L-BFGS: 3,000 rows, 4 lanes) and a
+ * batch (Adam: 57,000 rows, 51,300 training rows, batches of about 1,024
+ * in 2 lanes). */
+static void test_network_threads_do_not_change_the_weights(void **state)
+{
+    (void)state;
+    enum { N = 57000 };
+    long double *X = malloc((size_t)N * SM_P * sizeof *X);
+    double *y = malloc(N * sizeof *y);
+    assert_non_null(X);
+    assert_non_null(y);
+    gsl_rng *r = rng_new(12);
+    smooth_rows(r, N, X, y, 0.1);
+    for (int s = 0; s < 2; s++) {
+        size_t n = s ? N : 3000;
+        network_options o;
+        network_options_init(&o);
+        o.solver = s ? NETWORK_ADAM : NETWORK_LBFGS;
+        o.epochs = s ? 2 : 30;
+        o.seed = 77;
+        network_model *m[3] = { NULL, NULL, NULL };
+        const size_t threads[3] = { 1, 2, 4 };
+        for (int k = 0; k < 3; k++) {
+            rf_error e = {0};
+            o.threads = threads[k];
+            assert_int_equal(network_fit(X, y, n, SM_P, &o, &m[k], &e),
+                             RF_OK);
+        }
+        if (s)
+            assert_int_equal(m[0]->batch, 1024);
+        for (int k = 1; k < 3; k++) {
+            assert_int_equal(m[k]->epochs, m[0]->epochs);
+            assert_memory_equal(m[k]->theta, m[0]->theta,
+                                m[0]->n_weights * sizeof *m[0]->theta);
+        }
+        for (int k = 0; k < 3; k++)
+            network_free(m[k]);
+    }
+    gsl_rng_free(r);
+    free(X);
+    free(y);
+}
+
+typedef struct losses { long n; double train[8]; } losses;
+
+static void keep_losses(void *ctx, long epoch, double train, double valid)
+{
+    (void)valid;
+    losses *l = ctx;
+    if (epoch >= 1 && epoch <= 8)
+        l->train[epoch - 1] = train;
+    l->n = epoch;
+}
+
+/* Adam deals the training rows into batches afresh every epoch, each row
+ * once: with a step too small to move any weight (rate 1e-300), an
+ * epoch's mean training loss, summed batch by batch, is the loss of one
+ * full pass at the start weights. A row dropped or dealt twice among the
+ * 60,000 would move it by about 1e-5 of itself; summation order, 1e-15. */
+static void test_network_adam_uses_every_row_once_an_epoch(void **state)
+{
+    (void)state;
+    enum { N = 60000 };
+    long double *X = malloc((size_t)N * SM_P * sizeof *X);
+    double *y = malloc(N * sizeof *y);
+    assert_non_null(X);
+    assert_non_null(y);
+    gsl_rng *r = rng_new(13);
+    smooth_rows(r, N, X, y, 0.3);
+    for (int classify = 0; classify <= 1; classify++) {
+        if (classify)
+            for (size_t i = 0; i < N; i++)
+                y[i] = y[i] > 0;
+        network_options o;
+        network_options_init(&o);
+        o.classify = classify;
+        o.solver = NETWORK_ADAM;
+        o.holdout = 0;
+        o.epochs = 3;
+        o.rate = 1e-300;
+        losses l = { 0, { 0 } };
+        o.progress = keep_losses;
+        o.progress_ctx = &l;
+        network_model *m = NULL;
+        rf_error e = {0};
+        assert_int_equal(network_fit(X, y, N, SM_P, &o, &m, &e), RF_OK);
+        assert_int_equal(l.n, 3);
+        assert_int_equal(m->batch, 1024);
+        for (int k = 0; k < 3; k++)
+            assert_close(l.train[k], m->train_loss, 1e-12, 0);
+        network_free(m);
+    }
+    gsl_rng_free(r);
+    free(X);
+    free(y);
+}
+
+/* network.h: NETWORK_BATCH rows, doubled while an epoch keeps at least
+ * NETWORK_BATCH_STEPS batches, at most NETWORK_BATCH_MAX. */
+static void test_network_batch_grows_with_the_rows(void **state)
+{
+    (void)state;
+    assert_int_equal(network_batch(1), 128);
+    assert_int_equal(network_batch(12799), 128);
+    assert_int_equal(network_batch(12800), 256);
+    assert_int_equal(network_batch(25600), 512);
+    assert_int_equal(network_batch(51199), 512);
+    assert_int_equal(network_batch(51200), 1024);
+    assert_int_equal(network_batch(1000000000), 1024);
+}
+
 /* ------------------------------------------------------------ importance */
 
 /* y = 3 x1 + x2 / 2 + (district C: 2) + noise; x3 does nothing. Columns:
@@ -666,6 +801,10 @@ int main(void)
     gsl_set_error_handler_off();
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_network_gradient_matches_finite_differences),
+        cmocka_unit_test(test_network_gradient_over_lanes),
+        cmocka_unit_test(test_network_threads_do_not_change_the_weights),
+        cmocka_unit_test(test_network_adam_uses_every_row_once_an_epoch),
+        cmocka_unit_test(test_network_batch_grows_with_the_rows),
         cmocka_unit_test(test_network_learns_xor),
         cmocka_unit_test(test_network_beats_linear_on_interaction),
         cmocka_unit_test(test_network_both_solvers_fit_a_smooth_surface),
