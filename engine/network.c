@@ -224,10 +224,9 @@ typedef struct lane {
     long double loss;             /* the lane's summed loss */
 } lane;
 
-/* The lanes' copies of the weights are their own, not shared: a shared
- * copy written for every Adam batch by one thread moved its cache lines
- * to the others' caches each time, which cost the threads a fifth of
- * their speed in tests/bench_net.c. */
+/* Each lane builds its own copy of the weights (lane_weights) rather than
+ * reading one shared copy: a shared copy, rewritten by one thread for
+ * every Adam batch, would move between the processors' caches each time. */
 struct network_work {
     size_t rows, n_layers, nw;
     lane lane[NETWORK_LANES];
@@ -257,7 +256,8 @@ void network_work_free(network_work *w)
 network_work *network_work_alloc(size_t n_layers, const size_t *units,
                                  size_t rows)
 {
-    if (n_layers == 0 || n_layers > LAYERS_MAX || rows == 0)
+    if (n_layers == 0 || n_layers > LAYERS_MAX || rows == 0
+        || units[n_layers] != 1)
         return NULL;
     network_work *w = calloc(1, sizeof *w);
     if (w == NULL)
@@ -964,9 +964,9 @@ static rf_status run_lbfgs(fit_ws *f, const network_model *m, double rate,
 /* A uniform integer in [0, s), s >= 1, from r's 32-bit output by
  * Lemire's multiply-and-shift with rejection (Lemire, "Fast random integer
  * generation in an interval", ACM TOMACS 29 (2019) 1, Algorithm 5):
- * unbiased like gsl_rng_uniform_int, without its divisions (which made
- * drawing a sixth of an Adam epoch in tests/bench_net.c). r has a 32-bit
- * output (taus2 here). */
+ * unbiased like gsl_rng_uniform_int, without its divisions (GSL's
+ * shuffle of all the rows took a tenth of an Adam epoch in
+ * tests/bench_net.c). r has a 32-bit output (taus2 here). */
 static uint32_t below(gsl_rng *r, uint32_t s)
 {
     uint64_t m = (uint64_t)(uint32_t)gsl_rng_get(r) * s;

@@ -164,7 +164,11 @@ void network_options_init(network_options *o);
  * loss) by L-BFGS or Adam (network.c cites both), stopping at the cap, at
  * convergence or early (patience above); it keeps the weights with the
  * lowest held-out loss seen. The restart with the lowest held-out loss is
- * kept. The same inputs give the same weights bit for bit on one machine.
+ * kept. The same inputs give the same weights bit for bit on one machine,
+ * with any o->threads. The passes run on a team of threads (team.h) that
+ * lives for the call; meanwhile OpenBLAS is set to one thread of its own
+ * (process-wide; restored on return), so no other thread of the process
+ * should call the BLAS during a fit.
  *
  * Errors (RF_EINPUT): bad options (no hidden layer, a layer of 0 or more
  * than NETWORK_UNITS_MAX units, restarts 0, negative or non-finite ridge,
@@ -173,7 +177,8 @@ void network_options_init(network_options *o);
  * a yes/no target other than 0/1, sizes past what the solver can index,
  * and a training loss that becomes non-finite (the rate is too large).
  * RF_ENOMEM. *out is the new model (caller frees with network_free), NULL
- * on error. Workspace O(n units[0] + block x units + memory x weights).
+ * on error. Workspace O(n units[0] + lanes x block x units + (memory +
+ * lanes) x weights), and Adam's O(n) for its batches.
  */
 rf_status network_fit(const long double *X, const double *y, size_t n,
                       size_t p, const network_options *o,
@@ -214,8 +219,9 @@ const char *network_solver_str(network_solver s);  /* "lbfgs", "adam" */
 /* ---- For tests and the solvers: the objective and its gradient. ---- */
 
 /* Workspace of network_loss_grad for a network of n_layers layers with
- * units[0..n_layers] units, over blocks of up to rows rows. NULL on no
- * memory. */
+ * units[0..n_layers] units (units[n_layers] = 1, the one output unit),
+ * over blocks of up to rows rows, for up to NETWORK_LANES lanes. NULL on
+ * no memory or another output width. */
 typedef struct network_work network_work;
 network_work *network_work_alloc(size_t n_layers, const size_t *units,
                                  size_t rows);
@@ -229,7 +235,8 @@ void network_work_free(network_work *w);  /* accepts NULL */
  * classify (z_i the output unit's input, out_i = 1/(1 + e^-z_i)). When
  * grad is not NULL it receives the gradient (n_weights values) by
  * backpropagation (Rumelhart, Hinton & Williams, Nature 323 (1986) 533),
- * the products by cblas_dgemm on blocks of w's rows. When mean_loss is not
+ * the products by cblas_dgemm on blocks of w's rows, the rows cut into
+ * lanes as network.h says (on the calling thread). When mean_loss is not
  * NULL it receives (1/n) sum_i loss_i alone. n >= 1.
  */
 double network_loss_grad(size_t n_layers, const size_t *units, int classify,
