@@ -545,6 +545,20 @@ static void test_network_chooses_the_solver_by_size(void **state)
     gsl_rng_free(r);
 }
 
+/* n rows of smooth_rows drawn with seed, in new arrays the caller frees:
+ * the larger tables of the tests below. */
+static void smooth_data(size_t n, unsigned long seed, double noise,
+                        long double **X, double **y)
+{
+    *X = malloc(n * SM_P * sizeof **X);
+    *y = malloc(n * sizeof **y);
+    assert_non_null(*X);
+    assert_non_null(*y);
+    gsl_rng *r = rng_new(seed);
+    smooth_rows(r, n, *X, *y, noise);
+    gsl_rng_free(r);
+}
+
 /* The weights do not depend on the threads (network.h, NETWORK_LANES):
  * one, two and four threads give the same bits for both solvers, on rows
  * enough for several lanes a pass (L-BFGS: 3,000 rows, 4 lanes) and a
@@ -554,12 +568,9 @@ static void test_network_threads_do_not_change_the_weights(void **state)
 {
     (void)state;
     enum { N = 57000 };
-    long double *X = malloc((size_t)N * SM_P * sizeof *X);
-    double *y = malloc(N * sizeof *y);
-    assert_non_null(X);
-    assert_non_null(y);
-    gsl_rng *r = rng_new(12);
-    smooth_rows(r, N, X, y, 0.1);
+    long double *X;
+    double *y;
+    smooth_data(N, 12, 0.1, &X, &y);
     for (int s = 0; s < 2; s++) {
         size_t n = s ? N : 3000;
         network_options o;
@@ -585,7 +596,6 @@ static void test_network_threads_do_not_change_the_weights(void **state)
         for (int k = 0; k < 3; k++)
             network_free(m[k]);
     }
-    gsl_rng_free(r);
     free(X);
     free(y);
 }
@@ -610,12 +620,9 @@ static void test_network_adam_uses_every_row_once_an_epoch(void **state)
 {
     (void)state;
     enum { N = 60000 };
-    long double *X = malloc((size_t)N * SM_P * sizeof *X);
-    double *y = malloc(N * sizeof *y);
-    assert_non_null(X);
-    assert_non_null(y);
-    gsl_rng *r = rng_new(13);
-    smooth_rows(r, N, X, y, 0.3);
+    long double *X;
+    double *y;
+    smooth_data(N, 13, 0.3, &X, &y);
     for (int classify = 0; classify <= 1; classify++) {
         if (classify)
             for (size_t i = 0; i < N; i++)
@@ -639,7 +646,6 @@ static void test_network_adam_uses_every_row_once_an_epoch(void **state)
             assert_close(l.train[k], m->train_loss, 1e-12, 0);
         network_free(m);
     }
-    gsl_rng_free(r);
     free(X);
     free(y);
 }
