@@ -27,7 +27,7 @@ BUILD   := build
 endif
 
 # Debian packages: the build needs the -dev ones, the tests the rest.
-DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev \
+DEB_BUILD := gcc make pkg-config libxlsxwriter-dev libgsl-dev libopenblas-dev libopenblas-pthread-dev \
              libminizip-dev libexpat1-dev zlib1g-dev libfreexl-dev nettle-dev
 DEB_TEST  := libcmocka-dev python3 python3-openpyxl python3-statsmodels libreoffice-calc-nogui time \
              clang libclang-rt-14-dev python3-sklearn

@@ -589,8 +589,6 @@ static void lane_run(void *ctx, size_t member, size_t size)
         lane_pass(p, k);
 }
 
-/* Runs pass p and returns the objective as network_loss_grad: the lanes'
- * sums are added in lane order, whatever ran them. */
 /* Runs the lanes of pass p; the sums are then in w->lane[0 .. lanes-1]. */
 static void run_lanes(pass *p, int want_grad)
 {
@@ -602,6 +600,8 @@ static void run_lanes(pass *p, int want_grad)
         team_run(p->w->team, lane_run, p);
 }
 
+/* Runs pass p and returns the objective as network_loss_grad: the lanes'
+ * sums are added in lane order, whatever ran them. */
 static double run_pass(pass *p, double lambda, double *grad,
                        double *mean_loss)
 {
@@ -982,8 +982,8 @@ static uint32_t below(gsl_rng *r, uint32_t s)
 }
 
 /* The deal of an Adam epoch: every training row goes to one of
- * f->n_batches batches drawn uniformly at random, and the batches are laid
- * out one after another in f->Zs, f->ts. Drawing each row's batch
+ * f->n_batches batches drawn uniformly at random, and the batches are
+ * listed one after another in f->order. Drawing each row's batch
  * independently and uniformly makes every batch a random subset of the
  * rows, each row used once an epoch, as a shuffle cut into pieces would;
  * it is the first step of Rao's and Sandelius's random permutation
@@ -1408,23 +1408,28 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
     f.grad = malloc(nw * sizeof *f.grad);
     if (f.w == NULL || f.theta == NULL || f.best == NULL || f.grad == NULL)
         goto fail;
+    /* the threads: no more than the lanes of the passes they share (for
+     * Adam, of its batches); a team that cannot be had means one thread,
+     * not a failed fit */
+    if (adam)
+        m->batch = network_batch(f.n_train);
     size_t threads = o->threads > 0 ? o->threads : team_cores();
-    if (threads > lanes_for(f.n_train))
-        threads = lanes_for(f.n_train);
+    size_t lanes = lanes_for(adam && m->batch < f.n_train ? m->batch
+                                                          : f.n_train);
+    if (threads > lanes)
+        threads = lanes;
     if (threads > 1) {
         f.team = team_create(threads);
-        if (f.team == NULL)
-            goto fail;
         f.w->team = f.team;
-        /* the team's threads are the parallelism: OpenBLAS starting its
-         * own inside each lane's small products would only compete */
-        if (team_size(f.team) > 1) {
-            f.blas_threads = openblas_get_num_threads();
-            openblas_set_num_threads(1);
-        }
     }
+    /* OpenBLAS runs every product on the calling thread, whatever the
+     * team: its own threads would compete with the team's inside the
+     * lanes' small products, and, with one thread or several, they would
+     * round the products (and L-BFGS's long dot products) differently
+     * from a lane's one thread, so the weights would depend on o->threads */
+    f.blas_threads = openblas_get_num_threads();
+    openblas_set_num_threads(1);
     if (adam) {
-        m->batch = network_batch(f.n_train);
         /* batches of m->batch rows on average, at least one */
         f.n_batches = (f.n_train + m->batch / 2) / m->batch;
         if (f.n_batches < 1)
@@ -1558,6 +1563,10 @@ rf_status network_importance(const network_model *m, const long double *X,
                                     / m->in_scale[u]);
         t[k] = m->classify ? y[i] : (y[i] - m->y_mean) / m->y_scale;
     }
+    /* OpenBLAS on the calling thread, as in network_fit, so that the
+     * losses do not depend on its thread count */
+    int blas_threads = openblas_get_num_threads();
+    openblas_set_num_threads(1);
     double base;
     network_loss_grad(m->n_layers, m->units, m->classify, m->theta, Z, t, nh,
                       0, NULL, &base, w);
@@ -1590,6 +1599,7 @@ rf_status network_importance(const network_model *m, const long double *X,
         }
         out[g] = reported(m, (double)(rise / NETWORK_PERMUTATIONS));
     }
+    openblas_set_num_threads(blas_threads);
     free(Z);
     free(Zp);
     free(t);

@@ -7,6 +7,7 @@
  * time. The caller spins until every member has reported. Not a general
  * thread pool.
  */
+#define _GNU_SOURCE   /* sched_getaffinity, CPU_COUNT */
 #include "team.h"
 
 #include <pthread.h>
@@ -30,6 +31,9 @@ typedef struct seat {
     size_t i;
 } seat;
 
+/* The counters the members spin on and the one they add to sit on cache
+ * lines of their own (64 bytes on the x86-64 and ARM64 machines rowfit
+ * runs on), so a member reporting does not disturb those still waiting. */
 struct team {
     size_t size;                 /* members, the caller included */
     int sync;                    /* lock and wake initialized */
@@ -37,12 +41,12 @@ struct team {
     seat seats[TEAM_MAX];
     pthread_mutex_t lock;
     pthread_cond_t wake;
-    atomic_ulong gen;            /* bumped by every run and by team_free */
-    atomic_size_t done;          /* threads finished with the current run */
-    atomic_int sleepers;         /* threads asleep or about to sleep */
-    atomic_int stop;
     team_fn fn;                  /* the current run, published by gen */
     void *ctx;
+    _Alignas(64) atomic_ulong gen;   /* bumped by every run, and to stop */
+    atomic_int stop;
+    atomic_int sleepers;         /* threads asleep or about to sleep */
+    _Alignas(64) atomic_size_t done; /* threads finished with this run */
 };
 
 static void relax(void)
@@ -64,11 +68,11 @@ static void pause_or_yield(unsigned k)
         sched_yield();
 }
 
-static long elapsed_ns(const struct timespec *t0)
+static long long elapsed_ns(const struct timespec *t0)
 {
     struct timespec t;
     clock_gettime(CLOCK_MONOTONIC, &t);
-    return (long)(t.tv_sec - t0->tv_sec) * 1000000000L
+    return (long long)(t.tv_sec - t0->tv_sec) * 1000000000LL
            + (t.tv_nsec - t0->tv_nsec);
 }
 
@@ -112,9 +116,17 @@ static void *member(void *arg)
     }
 }
 
+/* The processors this process may run on (taskset, a container's CPU
+ * set), not those the machine has: a team larger than that would wait
+ * on itself. */
 size_t team_cores(void)
 {
-    long c = sysconf(_SC_NPROCESSORS_ONLN);
+    long c = 0;
+    cpu_set_t set;
+    if (sched_getaffinity(0, sizeof set, &set) == 0)
+        c = CPU_COUNT(&set);
+    if (c < 1)
+        c = sysconf(_SC_NPROCESSORS_ONLN);
     if (c < 1)
         return 1;
     return (size_t)c < TEAM_MAX ? (size_t)c : TEAM_MAX;
@@ -134,16 +146,11 @@ team *team_create(size_t size)
     atomic_init(&t->done, 0);
     atomic_init(&t->sleepers, 0);
     atomic_init(&t->stop, 0);
-    if (size == 1)
-        return t;
-    if (pthread_mutex_init(&t->lock, NULL) != 0) {
-        free(t);
-        return NULL;
-    }
+    if (size == 1 || pthread_mutex_init(&t->lock, NULL) != 0)
+        return t;   /* a team of one: the caller alone */
     if (pthread_cond_init(&t->wake, NULL) != 0) {
         pthread_mutex_destroy(&t->lock);
-        free(t);
-        return NULL;
+        return t;
     }
     t->sync = 1;
     /* members are numbered as started, so a refused thread only makes the

@@ -21,13 +21,14 @@ typedef struct team team;
  * fail (record failures in ctx). */
 typedef void (*team_fn)(void *ctx, size_t member, size_t size);
 
-/* The processors online (1 when the system cannot tell), at most TEAM_MAX. */
+/* The processors this process may use (its CPU affinity; else those
+ * online; 1 when the system cannot tell), at most TEAM_MAX. */
 size_t team_cores(void);
 
 /* A team of up to `size` members (at least 1, at most TEAM_MAX): the caller
  * is member 0 and size - 1 threads are started. When the system refuses a
- * thread the team is smaller (team_size says how large); the result is
- * NULL only when memory runs out. Free with team_free. */
+ * thread (or its lock) the team is smaller (team_size says how large); the
+ * result is NULL only when memory runs out. Free with team_free. */
 team *team_create(size_t size);
 
 size_t team_size(const team *t);

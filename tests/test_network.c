@@ -600,6 +600,52 @@ static void test_network_threads_do_not_change_the_weights(void **state)
     free(y);
 }
 
+/* Wide layers, whose products OpenBLAS would split among threads of its
+ * own, and L-BFGS's dot products over more than 10,000 weights: still the
+ * same bits with one thread or two (network.c runs OpenBLAS on the
+ * calling thread throughout a fit). Adam: 3,000 rows x 20 inputs, 64
+ * units; L-BFGS: 1,200 rows x 25 inputs, 500 units (13,501 weights). */
+static void test_network_threads_do_not_change_wide_layers(void **state)
+{
+    (void)state;
+    for (int s = 0; s < 2; s++) {
+        const size_t n = s ? 1200 : 3000, q = s ? 25 : 20, p = q + 1;
+        long double *X = malloc(n * p * sizeof *X);
+        double *y = malloc(n * sizeof *y);
+        assert_non_null(X);
+        assert_non_null(y);
+        gsl_rng *r = rng_new(31 + (unsigned long)s);
+        for (size_t i = 0; i < n; i++) {
+            double z = 0;
+            X[i * p] = 1;
+            for (size_t j = 1; j < p; j++) {
+                X[i * p + j] = gsl_ran_gaussian(r, 1.0);
+                z += sin((double)j * (double)X[i * p + j]) / (double)j;
+            }
+            y[i] = z + gsl_ran_gaussian(r, 0.2);
+        }
+        gsl_rng_free(r);
+        network_options o;
+        network_options_init(&o);
+        o.solver = s ? NETWORK_LBFGS : NETWORK_ADAM;
+        o.hidden[0] = s ? 500 : 64;
+        o.epochs = 3;
+        network_model *m[2] = { NULL, NULL };
+        for (int k = 0; k < 2; k++) {
+            rf_error e = {0};
+            o.threads = (size_t)k + 1;
+            assert_int_equal(network_fit(X, y, n, p, &o, &m[k], &e), RF_OK);
+        }
+        assert_int_equal(m[0]->n_weights, s ? 13501 : 1409);
+        assert_memory_equal(m[1]->theta, m[0]->theta,
+                            m[0]->n_weights * sizeof *m[0]->theta);
+        network_free(m[0]);
+        network_free(m[1]);
+        free(X);
+        free(y);
+    }
+}
+
 typedef struct losses { long n; double train[8]; } losses;
 
 static void keep_losses(void *ctx, long epoch, double train, double valid)
@@ -809,6 +855,7 @@ int main(void)
         cmocka_unit_test(test_network_gradient_matches_finite_differences),
         cmocka_unit_test(test_network_gradient_over_lanes),
         cmocka_unit_test(test_network_threads_do_not_change_the_weights),
+        cmocka_unit_test(test_network_threads_do_not_change_wide_layers),
         cmocka_unit_test(test_network_adam_uses_every_row_once_an_epoch),
         cmocka_unit_test(test_network_batch_grows_with_the_rows),
         cmocka_unit_test(test_network_learns_xor),
