@@ -8,6 +8,7 @@
  */
 #include "network.h"
 
+#include <assert.h>
 #include <float.h>
 #include <limits.h>
 #include <math.h>
@@ -208,7 +209,8 @@ static size_t layer_offset(const size_t *units, size_t l)
 
 /* One lane of a pass (network.h, NETWORK_LANES): its own activations,
  * deltas and gradient, so that lanes on different threads never write the
- * same memory. */
+ * same memory, nor the same cache line (its buffers from lane_malloc; a
+ * line of padding after the one field a lane writes in the struct). */
 typedef struct lane {
     double *act[LAYERS_MAX + 1];  /* act[l], l >= 1: rows x units[l];
                                      act[n_layers] holds the output unit's
@@ -222,6 +224,7 @@ typedef struct lane {
                                      biases, layer after layer */
     double *gz, *gt;              /* a block of gathered rows and targets */
     long double loss;             /* the lane's summed loss */
+    char pad[64];
 } lane;
 
 /* Each lane builds its own copy of the weights (lane_weights) rather than
@@ -253,6 +256,14 @@ void network_work_free(network_work *w)
     free(w);
 }
 
+/* malloc with two cache lines (64 bytes, x86-64 and ARM64) to spare after
+ * the block, so that no two lanes' buffers share a line; NULL on no
+ * memory. */
+static void *lane_malloc(size_t bytes)
+{
+    return malloc(bytes + 128);
+}
+
 network_work *network_work_alloc(size_t n_layers, const size_t *units,
                                  size_t rows)
 {
@@ -275,23 +286,23 @@ network_work *network_work_alloc(size_t n_layers, const size_t *units,
     }
     for (size_t k = 0; k < NETWORK_LANES; k++) {
         lane *ln = &w->lane[k];
-        ln->wt = malloc((nwt > 0 ? nwt : 1) * sizeof(double));
-        ln->tile = malloc((TANH_LANES * hidden > 0 ? TANH_LANES * hidden : 1)
+        ln->wt = lane_malloc((nwt > 0 ? nwt : 1) * sizeof(double));
+        ln->tile = lane_malloc((TANH_LANES * hidden > 0 ? TANH_LANES * hidden : 1)
                           * sizeof(double));
         if (ln->wt == NULL || ln->tile == NULL)
             goto fail;
         for (size_t l = 1; l <= n_layers; l++) {
-            ln->act[l] = malloc(rows * units[l] * sizeof(double));
+            ln->act[l] = lane_malloc(rows * units[l] * sizeof(double));
             if (ln->act[l] == NULL)
                 goto fail;
         }
-        ln->delta[0] = malloc(rows * widest * sizeof(double));
-        ln->delta[1] = malloc(rows * widest * sizeof(double));
-        ln->ones = malloc(rows * sizeof(double));
-        ln->grad = malloc(w->nw * sizeof(double));
-        ln->gz = malloc((rows * units[0] > 0 ? rows * units[0] : 1)
+        ln->delta[0] = lane_malloc(rows * widest * sizeof(double));
+        ln->delta[1] = lane_malloc(rows * widest * sizeof(double));
+        ln->ones = lane_malloc(rows * sizeof(double));
+        ln->grad = lane_malloc(w->nw * sizeof(double));
+        ln->gz = lane_malloc((rows * units[0] > 0 ? rows * units[0] : 1)
                         * sizeof(double));
-        ln->gt = malloc(rows * sizeof(double));
+        ln->gt = lane_malloc(rows * sizeof(double));
         if (ln->delta[0] == NULL || ln->delta[1] == NULL || ln->ones == NULL
             || ln->grad == NULL || ln->gz == NULL || ln->gt == NULL)
             goto fail;
@@ -757,9 +768,12 @@ typedef struct fit_ws {
                                       one after another */
     uint32_t *batch_of;            /* n_train: each row's batch */
     size_t n_batches;
-    size_t *count;                 /* NETWORK_LANES x n_batches */
+    size_t *count;                 /* NETWORK_LANES rows of count_stride:
+                                      a part's batch sizes */
+    size_t count_stride;           /* n_batches and a cache line (64
+                                      bytes): parts dealt on different
+                                      threads count on lines apart */
     size_t *first;                 /* n_batches + 1 */
-    gsl_rng *part_rng[NETWORK_LANES];
     team *team;                    /* NULL: one thread */
     int blas_threads;              /* OpenBLAS's threads to restore, or 0 */
     gsl_rng *rng;                  /* held-out draw, start weights */
@@ -1000,15 +1014,25 @@ typedef struct deal {
     unsigned long seed;   /* the epoch's */
 } deal;
 
+/* Each part's stream is a taus2 generator seeded for the part, its state
+ * on the stack of the thread that deals the part: generators from
+ * gsl_rng_alloc sit side by side on the heap, and two threads drawing
+ * from neighbours moved the cache line between them at every draw (the
+ * deal ran 2.5 times slower on two threads than on one in
+ * tests/bench_net.c). gsl_rng is GSL's public struct of a type and its
+ * state. */
 static void deal_count(void *ctx, size_t member, size_t size)
 {
     const deal *d = ctx;
     fit_ws *f = d->f;
     const size_t B = f->n_batches, n = f->n_train;
+    unsigned long state[16];   /* taus2 needs 3 */
+    assert(gsl_rng_taus2->size <= sizeof state);
+    gsl_rng stream = { gsl_rng_taus2, state };
     for (size_t k = member; k < d->parts; k += size) {
-        gsl_rng *r = f->part_rng[k];
+        gsl_rng *r = &stream;
         gsl_rng_set(r, mix_seed(d->seed, k));
-        size_t *count = f->count + k * B;
+        size_t *count = f->count + k * f->count_stride;
         memset(count, 0, B * sizeof *count);
         for (size_t i = n * k / d->parts; i < n * (k + 1) / d->parts; i++) {
             uint32_t b = below(r, (uint32_t)B);
@@ -1022,9 +1046,10 @@ static void deal_place(void *ctx, size_t member, size_t size)
 {
     const deal *d = ctx;
     fit_ws *f = d->f;
-    const size_t B = f->n_batches, n = f->n_train;
+    const size_t n = f->n_train;
     for (size_t k = member; k < d->parts; k += size) {
-        size_t *at = f->count + k * B;   /* now the next free place */
+        /* the part's counts are now its next free places */
+        size_t *at = f->count + k * f->count_stride;
         for (size_t i = n * k / d->parts; i < n * (k + 1) / d->parts; i++)
             f->order[at[f->batch_of[i]]++] = (uint32_t)i;
     }
@@ -1043,8 +1068,8 @@ static void deal_rows(fit_ws *f)
     for (size_t b = 0; b < B; b++) {
         f->first[b] = at;
         for (size_t k = 0; k < d.parts; k++) {
-            size_t c = f->count[k * B + b];
-            f->count[k * B + b] = at;
+            size_t c = f->count[k * f->count_stride + b];
+            f->count[k * f->count_stride + b] = at;
             at += c;
         }
     }
@@ -1211,9 +1236,6 @@ static void ws_free(fit_ws *f)
     free(f->batch_of);
     free(f->count);
     free(f->first);
-    for (size_t k = 0; k < NETWORK_LANES; k++)
-        if (f->part_rng[k] != NULL)
-            gsl_rng_free(f->part_rng[k]);
     if (f->rng != NULL)
         gsl_rng_free(f->rng);
     if (f->mix != NULL)
@@ -1439,15 +1461,13 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
         f.order = malloc(f.n_train * sizeof *f.order);
         f.is_weight = malloc(nw);
         f.batch_of = malloc(f.n_train * sizeof *f.batch_of);
-        f.count = malloc(NETWORK_LANES * f.n_batches * sizeof *f.count);
+        f.count_stride = f.n_batches + 64 / sizeof *f.count;
+        f.count = malloc(NETWORK_LANES * f.count_stride * sizeof *f.count);
         f.first = malloc((f.n_batches + 1) * sizeof *f.first);
         if (f.mo == NULL || f.vo == NULL || f.order == NULL
             || f.is_weight == NULL
             || f.batch_of == NULL || f.count == NULL || f.first == NULL)
             goto fail;
-        for (size_t k = 0; k < NETWORK_LANES; k++)
-            if ((f.part_rng[k] = gsl_rng_alloc(gsl_rng_taus2)) == NULL)
-                goto fail;
         for (size_t l = 0, i = 0; l < L; l++) {
             size_t nwl = m->units[l + 1] * m->units[l];
             memset(f.is_weight + i, 1, nwl);

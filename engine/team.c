@@ -32,8 +32,10 @@ typedef struct seat {
 } seat;
 
 /* The counters the members spin on and the one they add to sit on cache
- * lines of their own (64 bytes on the x86-64 and ARM64 machines rowfit
- * runs on), so a member reporting does not disturb those still waiting. */
+ * lines of their own (a line is 64 bytes on the x86-64 and ARM64 machines
+ * rowfit runs on; a gap of a line between the groups keeps them apart
+ * without asking malloc for an alignment it does not promise), so a
+ * member reporting does not disturb those still waiting. */
 struct team {
     size_t size;                 /* members, the caller included */
     int sync;                    /* lock and wake initialized */
@@ -43,10 +45,13 @@ struct team {
     pthread_cond_t wake;
     team_fn fn;                  /* the current run, published by gen */
     void *ctx;
-    _Alignas(64) atomic_ulong gen;   /* bumped by every run, and to stop */
+    char gap0[64];
+    atomic_ulong gen;            /* bumped by every run, and to stop */
     atomic_int stop;
     atomic_int sleepers;         /* threads asleep or about to sleep */
-    _Alignas(64) atomic_size_t done; /* threads finished with this run */
+    char gap1[64];
+    atomic_size_t done;          /* threads finished with this run */
+    char gap2[64];
 };
 
 static void relax(void)
