@@ -29,6 +29,19 @@
 void openblas_set_num_threads(int threads);
 int openblas_get_num_threads(void);
 
+/* Sets OpenBLAS to run every product on the calling thread and returns
+ * its thread count before, for openblas_set_num_threads to restore. A fit
+ * and an importance run so: OpenBLAS's own threads would compete with the
+ * team's inside the lanes' small products, and, one or several, they
+ * would round wide products (and L-BFGS's long dot products) differently
+ * from one thread, so the results would depend on the threads. */
+static int blas_on_caller(void)
+{
+    int before = openblas_get_num_threads();
+    openblas_set_num_threads(1);
+    return before;
+}
+
 _Static_assert(NETWORK_HIDDEN_MAX == JOB_HIDDEN_MAX,
                "network.h and job.h disagree on the hidden layers");
 _Static_assert(NETWORK_UNITS_MAX == JOB_UNITS_MAX,
@@ -287,8 +300,8 @@ network_work *network_work_alloc(size_t n_layers, const size_t *units,
     for (size_t k = 0; k < NETWORK_LANES; k++) {
         lane *ln = &w->lane[k];
         ln->wt = lane_malloc((nwt > 0 ? nwt : 1) * sizeof(double));
-        ln->tile = lane_malloc((TANH_LANES * hidden > 0 ? TANH_LANES * hidden : 1)
-                          * sizeof(double));
+        ln->tile = lane_malloc((hidden > 0 ? TANH_LANES * hidden : 1)
+                               * sizeof(double));
         if (ln->wt == NULL || ln->tile == NULL)
             goto fail;
         for (size_t l = 1; l <= n_layers; l++) {
@@ -300,8 +313,8 @@ network_work *network_work_alloc(size_t n_layers, const size_t *units,
         ln->delta[1] = lane_malloc(rows * widest * sizeof(double));
         ln->ones = lane_malloc(rows * sizeof(double));
         ln->grad = lane_malloc(w->nw * sizeof(double));
-        ln->gz = lane_malloc((rows * units[0] > 0 ? rows * units[0] : 1)
-                        * sizeof(double));
+        ln->gz = lane_malloc((units[0] > 0 ? rows * units[0] : 1)
+                             * sizeof(double));
         ln->gt = lane_malloc(rows * sizeof(double));
         if (ln->delta[0] == NULL || ln->delta[1] == NULL || ln->ones == NULL
             || ln->grad == NULL || ln->gz == NULL || ln->gt == NULL)
@@ -388,8 +401,9 @@ static void outer_slope(double *restrict dp, double *restrict gb,
 }
 
 /* A lane's copy of the weights, built by the lane at the start of a
- * pass: each layer's W transposed into ln->wt, so that the forward product is in W' with both
- * operands untransposed (OpenBLAS 0.3.21 ran that form 1.6 times as fast
+ * pass: each layer's W transposed into ln->wt, so that the forward
+ * product is in W' with both operands untransposed (OpenBLAS 0.3.21 ran
+ * that form 1.6 times as fast
  * as in times W transposed on the 128 x 20 x 16 and 512 x 20 x 16
  * products of tests/bench_net.c), and TANH_LANES rows of each hidden
  * layer's biases for tanh_block. */
@@ -661,6 +675,7 @@ double network_loss_grad(size_t L, const size_t *units, int classify,
     pass p = { L, units, classify, 0, theta, Z, t, NULL, n, 1, w };
     return run_pass(&p, lambda, grad, mean_loss);
 }
+
 /* ------------------------------------------------------------ the model */
 
 void network_free(network_model *m)
@@ -753,7 +768,7 @@ static unsigned long mix_seed(unsigned long s, unsigned long k)
 /* Everything one fit needs, sized once (network.h: workspaces are sized
  * per fit, never inside the optimiser loops). */
 typedef struct fit_ws {
-    size_t L, nw, q, n_train, n_hold;
+    size_t L, nw, n_train, n_hold;
     const size_t *units;
     int classify;
     double lambda;
@@ -763,7 +778,6 @@ typedef struct fit_ws {
     double *theta, *best, *grad, *g2, *cand, *dir;  /* nw each */
     double *S, *Y, *rho, *alpha;   /* L-BFGS memory */
     double *mo, *vo;               /* Adam moments */
-    unsigned char *is_weight;      /* Adam: nw, 1 for a weight, 0 a bias */
     uint32_t *order;               /* Adam: n_train, the epoch's batches
                                       one after another */
     uint32_t *batch_of;            /* n_train: each row's batch */
@@ -1003,8 +1017,9 @@ static uint32_t below(gsl_rng *r, uint32_t s)
  * it is the first step of Rao's and Sandelius's random permutation
  * (Sandelius, Ann. Math. Statist. 33 (1962) 1537), the order within a
  * batch being irrelevant to its gradient. Batch sizes vary (binomially,
- * about n_train / n_batches). Unlike a shuffle it runs in parallel: the rows are cut into parts as a pass cuts them
- * into lanes (lanes_for), each part draws from its own stream seeded from
+ * about n_train / n_batches). Unlike a shuffle it runs in parallel: the
+ * rows are cut into parts as a pass cuts them into lanes (lanes_for),
+ * each part draws from its own stream seeded from
  * the epoch's seed and the part, so the deal does not depend on the
  * threads; and a batch's rows, ascending within a part, are gathered
  * from memory in address order. */
@@ -1093,16 +1108,22 @@ static void adam_update(const adam_step *st)
 {
     fit_ws *f = st->f;
     const network_work *w = f->w;
-    for (size_t i = 0; i < f->nw; i++) {
-        double g = w->lane[0].grad[i];
-        for (size_t k = 1; k < st->lanes; k++)
-            g += w->lane[k].grad[i];
-        g = g / (double)st->rows;
-        if (f->is_weight[i])
-            g += f->lambda * f->theta[i];
-        f->mo[i] = ADAM_B1 * f->mo[i] + (1 - ADAM_B1) * g;
-        f->vo[i] = ADAM_B2 * f->vo[i] + (1 - ADAM_B2) * g * g;
-        f->theta[i] -= st->a * f->mo[i] / (sqrt(f->vo[i]) + ADAM_EPS);
+    size_t i = 0;
+    for (size_t l = 0; l < f->L; l++) {
+        /* the layer's weights, then its biases (not penalised) */
+        size_t weights_end = i + f->units[l + 1] * f->units[l];
+        size_t end = weights_end + f->units[l + 1];
+        for (; i < end; i++) {
+            double g = w->lane[0].grad[i];
+            for (size_t k = 1; k < st->lanes; k++)
+                g += w->lane[k].grad[i];
+            g = g / (double)st->rows;
+            if (i < weights_end)
+                g += f->lambda * f->theta[i];
+            f->mo[i] = ADAM_B1 * f->mo[i] + (1 - ADAM_B1) * g;
+            f->vo[i] = ADAM_B2 * f->vo[i] + (1 - ADAM_B2) * g * g;
+            f->theta[i] -= st->a * f->mo[i] / (sqrt(f->vo[i]) + ADAM_EPS);
+        }
     }
 }
 
@@ -1232,7 +1253,6 @@ static void ws_free(fit_ws *f)
     free(f->mo);
     free(f->vo);
     free(f->order);
-    free(f->is_weight);
     free(f->batch_of);
     free(f->count);
     free(f->first);
@@ -1416,7 +1436,6 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
     }
     f.L = L;
     f.nw = nw;
-    f.q = q;
     f.units = m->units;
     f.lambda = o->ridge / (double)f.n_train;
     f.Zt = Z;
@@ -1427,8 +1446,7 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
     f.w = network_work_alloc(L, m->units, block);
     f.theta = malloc(nw * sizeof *f.theta);
     f.best = malloc(nw * sizeof *f.best);
-    f.grad = malloc(nw * sizeof *f.grad);
-    if (f.w == NULL || f.theta == NULL || f.best == NULL || f.grad == NULL)
+    if (f.w == NULL || f.theta == NULL || f.best == NULL)
         goto fail;
     /* the threads: no more than the lanes of the passes they share (for
      * Adam, of its batches); a team that cannot be had means one thread,
@@ -1444,13 +1462,7 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
         f.team = team_create(threads);
         f.w->team = f.team;
     }
-    /* OpenBLAS runs every product on the calling thread, whatever the
-     * team: its own threads would compete with the team's inside the
-     * lanes' small products, and, with one thread or several, they would
-     * round the products (and L-BFGS's long dot products) differently
-     * from a lane's one thread, so the weights would depend on o->threads */
-    f.blas_threads = openblas_get_num_threads();
-    openblas_set_num_threads(1);
+    f.blas_threads = blas_on_caller();   /* whatever the team */
     if (adam) {
         /* batches of m->batch rows on average, at least one */
         f.n_batches = (f.n_train + m->batch / 2) / m->batch;
@@ -1459,22 +1471,15 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
         f.mo = malloc(nw * sizeof *f.mo);
         f.vo = malloc(nw * sizeof *f.vo);
         f.order = malloc(f.n_train * sizeof *f.order);
-        f.is_weight = malloc(nw);
         f.batch_of = malloc(f.n_train * sizeof *f.batch_of);
         f.count_stride = f.n_batches + 64 / sizeof *f.count;
         f.count = malloc(NETWORK_LANES * f.count_stride * sizeof *f.count);
         f.first = malloc((f.n_batches + 1) * sizeof *f.first);
         if (f.mo == NULL || f.vo == NULL || f.order == NULL
-            || f.is_weight == NULL
             || f.batch_of == NULL || f.count == NULL || f.first == NULL)
             goto fail;
-        for (size_t l = 0, i = 0; l < L; l++) {
-            size_t nwl = m->units[l + 1] * m->units[l];
-            memset(f.is_weight + i, 1, nwl);
-            memset(f.is_weight + i + nwl, 0, m->units[l + 1]);
-            i += nwl + m->units[l + 1];
-        }
     } else {
+        f.grad = malloc(nw * sizeof *f.grad);
         f.g2 = malloc(nw * sizeof *f.g2);
         f.cand = malloc(nw * sizeof *f.cand);
         f.dir = malloc(nw * sizeof *f.dir);
@@ -1482,8 +1487,8 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
         f.Y = malloc(NETWORK_LBFGS_MEMORY * nw * sizeof *f.Y);
         f.rho = malloc(NETWORK_LBFGS_MEMORY * sizeof *f.rho);
         f.alpha = malloc(NETWORK_LBFGS_MEMORY * sizeof *f.alpha);
-        if (f.g2 == NULL || f.cand == NULL || f.dir == NULL || f.S == NULL
-            || f.Y == NULL || f.rho == NULL || f.alpha == NULL)
+        if (f.grad == NULL || f.g2 == NULL || f.cand == NULL || f.dir == NULL
+            || f.S == NULL || f.Y == NULL || f.rho == NULL || f.alpha == NULL)
             goto fail;
     }
 
@@ -1583,10 +1588,7 @@ rf_status network_importance(const network_model *m, const long double *X,
                                     / m->in_scale[u]);
         t[k] = m->classify ? y[i] : (y[i] - m->y_mean) / m->y_scale;
     }
-    /* OpenBLAS on the calling thread, as in network_fit, so that the
-     * losses do not depend on its thread count */
-    int blas_threads = openblas_get_num_threads();
-    openblas_set_num_threads(1);
+    int blas_threads = blas_on_caller();
     double base;
     network_loss_grad(m->n_layers, m->units, m->classify, m->theta, Z, t, nh,
                       0, NULL, &base, w);

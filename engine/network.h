@@ -101,9 +101,9 @@ typedef struct network_options {
     size_t restarts;        /* fits from this many starts, >= 1 */
     double holdout;         /* share of rows held out, [0, 0.5]; 0: none
                                (no early stopping, no importance rows) */
-    size_t threads;         /* 0: the processors online; at most
-                               NETWORK_LANES are used either way. The
-                               weights do not depend on it. */
+    size_t threads;         /* 0: the processors the process may use;
+                               no more than the lanes are used either
+                               way. The weights do not depend on it. */
     network_progress progress;  /* may be NULL */
     void *progress_ctx;
 } network_options;

@@ -1070,7 +1070,8 @@ static rf_status write_summary_network(writer *w, const job *j,
         snprintf(note, sizeof note, "full-batch L-BFGS (quasi-Newton)");
     else
         snprintf(note, sizeof note, "mini-batch Adam, the rows dealt at "
-                 "random into batches of about %zu every epoch", net->batch);
+                 "random into batches of about %zu rows every epoch",
+                 net->batch);
     trow(s, &r, "solver", network_solver_str(net->solver), note);
     srow(s, &r, "epochs", (double)net->epochs, WFMT_INTEGER,
          net->solver == NETWORK_LBFGS ? "L-BFGS iterations of the kept "

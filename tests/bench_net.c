@@ -206,7 +206,8 @@ int main(int argc, char **argv)
         }
         per_epoch[s] = per;
         printf("bench-net: %s, %zu rows x %zu inputs, %zu hidden units, %ld "
-               "epochs in %.2f s: %.1f ms an epoch (median); training MSE %.4g\n",
+               "epochs in %.2f s: %.1f ms an epoch (median); training MSE "
+               "%.4g\n",
                network_solver_str(m->solver), n, q, h, m->epochs, total,
                per * 1e3, m->train_loss);
         network_free(m);
@@ -221,9 +222,13 @@ int main(int argc, char **argv)
     openblas_set_num_threads(1);
     printf("bench-net: cblas_dgemm 512 x %zu x %zu on one thread (a lane's "
            "forward product): %.2f GFLOP/s\n", q, h, dgemm_rate_small(q, h));
-    printf("bench-net: %zu processors; the network used %s\n", team_cores(),
-           threads_opt ? "--threads" : "up to that many threads (at most "
-           "NETWORK_LANES)");
+    if (threads_opt > 0)
+        printf("bench-net: %zu processors usable; the network was given "
+               "%zu threads (--threads)\n", team_cores(), threads_opt);
+    else
+        printf("bench-net: %zu processors usable; the network used one "
+               "thread each, at most %d (NETWORK_LANES)\n", team_cores(),
+               NETWORK_LANES);
     for (int s = first; s <= last; s++) {
         double rate = flops_row * (double)n / per_epoch[s] / 1e9;
         printf("bench-net: %s: %.1f ms an epoch, %.2f GFLOP/s = %.0f%% of "
