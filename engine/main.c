@@ -13,6 +13,7 @@
 #include <gsl/gsl_errno.h>
 
 #include "../io/error.h"
+#include "blascore.h"
 #include "peek.h"
 #include "run.h"
 
@@ -102,6 +103,7 @@ static int peek(int argc, char **argv)
 
 int main(int argc, char **argv)
 {
+    blascore_restart(argv);
     gsl_set_error_handler_off();
     int check = 0, quiet = 0, force = 0, first = 1;
     const char *output = NULL;
@@ -123,7 +125,8 @@ int main(int argc, char **argv)
                 fputs(usage, stdout);
                 return 0;
             } else if (strcmp(a, "--version") == 0) {
-                printf("rowfit %s\n", ROWFIT_VERSION);
+                printf("rowfit %s\nproducts: OpenBLAS, %s kernels\n",
+                       ROWFIT_VERSION, blascore_name());
                 return 0;
             } else if (strcmp(a, "-q") == 0 || strcmp(a, "--quiet") == 0)
                 quiet = 1;

@@ -14,6 +14,7 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
+#include "../engine/blascore.h"
 #include "../engine/diagnose.h"
 #include "../engine/linear.h"
 #include "../engine/validate.h"
@@ -28,6 +29,7 @@ static double now(void)
 int main(int argc, char **argv)
 {
     size_t n = 1000000, inputs = 10, k = 5;
+    blascore_restart(argv);   /* the kernels rowfit itself would run */
     for (int a = 1; a + 1 < argc; a += 2)
         if (strcmp(argv[a], "--rows") == 0)
             n = strtoul(argv[a + 1], NULL, 10);

@@ -33,6 +33,7 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
+#include "../engine/blascore.h"
 #include "../engine/network.h"
 #include "../engine/team.h"
 
@@ -135,6 +136,7 @@ static int by_value(const void *a, const void *b)
 int main(int argc, char **argv)
 {
     size_t n = 100000, q = 20, h = 16;
+    blascore_restart(argv);   /* the kernels rowfit itself would run */
     long epochs = 20;
     size_t threads_opt = 0;
     int first = 0, last = 1;   /* solvers: 0 Adam, 1 L-BFGS */
@@ -218,7 +220,8 @@ int main(int argc, char **argv)
     const char *threads = getenv("OPENBLAS_NUM_THREADS");
     double peak = dgemm_rate();
     printf("bench-net: cblas_dgemm 1000^3: %.2f GFLOP/s "
-           "(OPENBLAS_NUM_THREADS=%s)\n", peak, threads ? threads : "unset");
+           "(OpenBLAS's %s kernels, OPENBLAS_NUM_THREADS=%s)\n", peak,
+           blascore_name(), threads ? threads : "unset");
     openblas_set_num_threads(1);
     printf("bench-net: cblas_dgemm 512 x %zu x %zu on one thread (a lane's "
            "forward product): %.2f GFLOP/s\n", q, h, dgemm_rate_small(q, h));

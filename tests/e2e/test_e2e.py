@@ -27,13 +27,14 @@ import math
 import os
 import re
 import shutil
+import subprocess
 import sys
 import tempfile
 from fractions import Fraction
 
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from common import (REPO, Runner, close, describe, load,  # noqa: E402
+from common import (REPO, ROWFIT, Runner, close, describe, load,  # noqa: E402
                     main, make_dir, records, rowfit, snapshot, table, value)
 
 T = Runner()
@@ -594,6 +595,41 @@ def test_version_prints_a_version_and_exits_0():
     p = rowfit(["--version"], TMP)
     assert p.returncode == 0, describe(p)
     assert re.search(r"\d+\.\d+", p.stdout), "stdout %r" % p.stdout
+
+
+def products_line(p):
+    line = [l for l in p.stdout.splitlines() if l.startswith("products:")]
+    assert line, "no products line in %r" % p.stdout
+    m = re.match(r"products: OpenBLAS, (\S+) kernels$", line[0])
+    assert m, line[0]
+    return m.group(1)
+
+
+@test
+def test_version_names_kernels_that_the_processor_can_run():
+    # Debian 12's OpenBLAS falls back to its SSE3 "Prescott" kernels on
+    # processors newer than it (seen on an AVX-512 Xeon, family 6 model
+    # 207; engine/blascore.c); rowfit then restarts itself with
+    # OPENBLAS_CORETYPE. The processor's features from /proc/cpuinfo
+    # (Linux's proc(5)); the kernel sets' needs from OpenBLAS's
+    # kernel/x86_64/KERNEL.* (from memory).
+    with open("/proc/cpuinfo") as f:
+        flags = set(next(l for l in f if l.startswith("flags")).split(":")[1].split())
+    name = products_line(rowfit(["--version"], TMP))
+    if "avx" in flags:
+        assert name.lower() != "prescott", \
+            "OpenBLAS runs its SSE3 kernels on a processor with AVX"
+    if {"avx512f", "avx512cd", "avx512bw", "avx512dq", "avx512vl"} <= flags:
+        assert name.lower() in ("skylakex", "cooperlake", "sapphirerapids"), name
+
+
+@test
+def test_a_users_openblas_coretype_is_kept():
+    env = dict(os.environ, OPENBLAS_CORETYPE="Prescott")
+    p = subprocess.run([ROWFIT, "--version"], cwd=TMP, capture_output=True,
+                       text=True, timeout=60, env=env)
+    assert p.returncode == 0, describe(p)
+    assert products_line(p) == "Prescott", p.stdout
 
 
 @test
