@@ -149,6 +149,43 @@ typedef double tanh_vd __attribute__((vector_size(TANH_LANES
 typedef int64_t tanh_vi __attribute__((vector_size(TANH_LANES
                                                    * sizeof(double))));
 
+/* *v = tanh of its eight values, as described above; inlined into each
+ * clone of its callers (through a pointer: a vector argument by value
+ * would draw GCC's warning on the AVX-512 calling convention). */
+static inline __attribute__((always_inline)) void tanh_vec(tanh_vd *v)
+{
+    const tanh_vd x = *v;
+    const double ln2_hi = 6.93147180369123816490e-01;  /* fdlibm's split */
+    const double ln2_lo = 1.90821492927058770002e-10;
+    const double shift = 6755399441055744.0;            /* 1.5 x 2^52 */
+    const tanh_vi sign = (tanh_vi){ 0 } + INT64_MIN;
+    const tanh_vd big = (tanh_vd){ 0 } + 19.1;
+    tanh_vi xb = (tanh_vi)x;
+    tanh_vd a = (tanh_vd)(xb & ~sign);
+    tanh_vi over = a > big;
+    a = (tanh_vd)(((tanh_vi)a & ~over) | ((tanh_vi)big & over));
+    tanh_vd y = 2 * a;
+    tanh_vd kd = (y * 1.4426950408889634 + shift) - shift;  /* round */
+    tanh_vd r = (y - kd * ln2_hi) - kd * ln2_lo;
+    /* e^r - 1 = r (1 + r/2! + ... + r^13/14!), in Estrin's scheme
+     * (Knuth, TAOCP vol. 2, 3rd ed., sec. 4.6.4) for a short
+     * dependency chain */
+    tanh_vd r2 = r * r, r4 = r2 * r2, r8 = r4 * r4;
+    tanh_vd c01 = 1.0 + r * (1.0 / 2), c23 = 1.0 / 6 + r * (1.0 / 24);
+    tanh_vd c45 = 1.0 / 120 + r * (1.0 / 720);
+    tanh_vd c67 = 1.0 / 5040 + r * (1.0 / 40320);
+    tanh_vd c89 = 1.0 / 362880 + r * (1.0 / 3628800);
+    tanh_vd cab = 1.0 / 39916800 + r * (1.0 / 479001600);
+    tanh_vd ccd = 1.0 / 6227020800 + r * (1.0 / 87178291200);
+    tanh_vd q = r * ((c01 + r2 * c23) + r4 * (c45 + r2 * c67)
+                     + r8 * ((c89 + r2 * cab) + r4 * ccd));
+    tanh_vd kb = kd + (shift + 1023);   /* k + 1023 in the low bits */
+    tanh_vd two_k = (tanh_vd)((tanh_vi)kb << 52);
+    tanh_vd e = two_k * q + (two_k - 1);      /* expm1(2a) */
+    tanh_vd t = e / (e + 2);
+    *v = (tanh_vd)((tanh_vi)t | (xb & sign));  /* tanh's sign is x's */
+}
+
 /* v[k] = tanh(v[k] + bias[k % period]) for k < n, or tanh(v[k]) when bias
  * is NULL; period is a multiple of TANH_LANES (so no vector straddles the
  * end of bias), or any value when bias is NULL. */
@@ -156,11 +193,6 @@ __attribute__((target_clones("avx512f", "avx2", "default")))
 static void tanh_block(double *v, size_t n, const double *bias,
                        size_t period)
 {
-    const double ln2_hi = 6.93147180369123816490e-01;  /* fdlibm's split */
-    const double ln2_lo = 1.90821492927058770002e-10;
-    const double shift = 6755399441055744.0;            /* 1.5 x 2^52 */
-    const tanh_vi sign = (tanh_vi){ 0 } + INT64_MIN;
-    const tanh_vd big = (tanh_vd){ 0 } + 19.1;
     size_t at = 0;   /* i % period */
     for (size_t i = 0; i < n; i += TANH_LANES) {
         /* the last, partial vector through a zeroed copy */
@@ -178,30 +210,7 @@ static void tanh_block(double *v, size_t n, const double *bias,
             if (at == period)
                 at = 0;
         }
-        tanh_vi xb = (tanh_vi)x;
-        tanh_vd a = (tanh_vd)(xb & ~sign);
-        tanh_vi over = a > big;
-        a = (tanh_vd)(((tanh_vi)a & ~over) | ((tanh_vi)big & over));
-        tanh_vd y = 2 * a;
-        tanh_vd kd = (y * 1.4426950408889634 + shift) - shift;  /* round */
-        tanh_vd r = (y - kd * ln2_hi) - kd * ln2_lo;
-        /* e^r - 1 = r (1 + r/2! + ... + r^13/14!), in Estrin's scheme
-         * (Knuth, TAOCP vol. 2, 3rd ed., sec. 4.6.4) for a short
-         * dependency chain */
-        tanh_vd r2 = r * r, r4 = r2 * r2, r8 = r4 * r4;
-        tanh_vd c01 = 1.0 + r * (1.0 / 2), c23 = 1.0 / 6 + r * (1.0 / 24);
-        tanh_vd c45 = 1.0 / 120 + r * (1.0 / 720);
-        tanh_vd c67 = 1.0 / 5040 + r * (1.0 / 40320);
-        tanh_vd c89 = 1.0 / 362880 + r * (1.0 / 3628800);
-        tanh_vd cab = 1.0 / 39916800 + r * (1.0 / 479001600);
-        tanh_vd ccd = 1.0 / 6227020800 + r * (1.0 / 87178291200);
-        tanh_vd q = r * ((c01 + r2 * c23) + r4 * (c45 + r2 * c67)
-                         + r8 * ((c89 + r2 * cab) + r4 * ccd));
-        tanh_vd kb = kd + (shift + 1023);   /* k + 1023 in the low bits */
-        tanh_vd two_k = (tanh_vd)((tanh_vi)kb << 52);
-        tanh_vd e = two_k * q + (two_k - 1);      /* expm1(2a) */
-        tanh_vd t = e / (e + 2);
-        x = (tanh_vd)((tanh_vi)t | (xb & sign));  /* tanh's sign is x's */
+        tanh_vec(&x);
         if (m == TANH_LANES)
             memcpy(v + i, &x, sizeof x);
         else
@@ -400,6 +409,212 @@ static void outer_slope(double *restrict dp, double *restrict gb,
     }
 }
 
+/* ------------------------------------------------ one hidden layer, fused
+ *
+ * The usual network, one hidden layer of 8, 16, 24 or 32 units and the
+ * output unit, costs most of its time outside its two products: in
+ * BLAS calls on small shapes, in tanh over a buffer, and in the passes
+ * that re-read that buffer for the output, the deltas and the bias sums.
+ * For it, fused_rows does all of that per group of rows, in vector
+ * registers: a hidden unit's sum of inputs times weights, its tanh, the
+ * output, the loss and the output delta, and (with the gradient) the
+ * hidden deltas into a buffer, and the biases' and output weights'
+ * gradients. The input weights' gradient, deltas' times inputs over the
+ * whole block, stays a cblas_dgemm (its inner dimension is the block's
+ * rows: a shape OpenBLAS runs well). Each clone performs the same
+ * correctly rounded operations in the same order (ISO C: no contraction),
+ * so, as for tanh_block, every clone gives the same bits. */
+typedef struct fused {
+    const double *X, *t;    /* rows x q inputs, their targets */
+    size_t rows, q;
+    const double *wt;       /* the input weights transposed, q x h */
+    const double *b, *v;    /* h hidden biases, h output weights */
+    double c;               /* the output bias */
+    int classify, want_grad;
+    double *D;              /* rows x h: the hidden deltas */
+    double *gb, *gv, *gc;   /* gradient sums: hidden biases, output
+                               weights, output bias */
+    long double loss;       /* sum of the rows' losses */
+    /* with idx, the rows are idx[0 .. rows-1] of Zs and ts, gathered into
+     * X and t (then writable) as the kernel reaches them */
+    const uint32_t *idx;
+    const double *Zs, *ts;
+} fused;
+
+/* Rows ahead of the one being gathered that fused_fetch asks the memory
+ * for: enough to cover a memory access at a few hundred cycles a row
+ * (common practice: a prefetch distance of about the memory's latency
+ * over the work per item). */
+#define FUSED_AHEAD 16
+
+/* Copies rows r0 .. r0 + R - 1 of a gathering kernel into f->X and f->t,
+ * and asks for the rows FUSED_AHEAD later: the gather runs between the
+ * groups' arithmetic, so the memory works while the vector units do. */
+static inline __attribute__((always_inline)) void
+fused_fetch(const fused *f, size_t r0, const size_t R)
+{
+    const size_t q = f->q;
+#pragma GCC unroll 4
+    for (size_t r = r0; r < r0 + R; r++) {
+        if (r + FUSED_AHEAD < f->rows) {
+            const double *ahead = f->Zs + (size_t)f->idx[r + FUSED_AHEAD] * q;
+            for (size_t c = 0; c < q; c += TANH_LANES)
+                __builtin_prefetch(ahead + c);
+            if (q > 0)
+                __builtin_prefetch(ahead + q - 1);
+            __builtin_prefetch(f->ts + f->idx[r + FUSED_AHEAD]);
+        }
+        const double *src = f->Zs + (size_t)f->idx[r] * q;
+        double *dst = (double *)f->X + r * q;
+        size_t c = 0;
+        for (; c + TANH_LANES <= q; c += TANH_LANES) {
+            tanh_vd v;
+            memcpy(&v, src + c, sizeof v);
+            memcpy(dst + c, &v, sizeof v);
+        }
+        for (; c < q; c++)
+            dst[c] = src[c];
+        ((double *)f->t)[r] = f->ts[f->idx[r]];
+    }
+}
+
+/* The running sums of fused_rows, held in registers over the rows. */
+typedef struct fused_sums {
+    tanh_vd gb[4], gv[4];
+    double gc;
+    long double loss;
+} fused_sums;
+
+/* R rows from row r0 with H vectors of hidden units (h = 8 H); R and H
+ * constants where it is inlined, and the loops over them unrolled, so
+ * that the units' sums live in registers and the R H tanh run side by
+ * side. */
+static inline __attribute__((always_inline)) void
+fused_group(const fused *f, fused_sums *S, size_t r0, const size_t R,
+            const size_t H)
+{
+    const size_t q = f->q, h = H * TANH_LANES;
+    tanh_vd z[4][4], vv[4];
+#pragma GCC unroll 4
+    for (size_t i = 0; i < H; i++) {
+        tanh_vd bv;
+        memcpy(&bv, f->b + i * TANH_LANES, sizeof bv);
+        memcpy(&vv[i], f->v + i * TANH_LANES, sizeof vv[i]);
+#pragma GCC unroll 4
+        for (size_t r = 0; r < R; r++)
+            z[r][i] = bv;
+    }
+    const double *x = f->X + r0 * q;
+    for (size_t k = 0; k < q; k++) {
+        tanh_vd w[4];
+#pragma GCC unroll 4
+        for (size_t i = 0; i < H; i++)
+            memcpy(&w[i], f->wt + k * h + i * TANH_LANES, sizeof w[i]);
+#pragma GCC unroll 4
+        for (size_t r = 0; r < R; r++) {
+            const double xv = x[r * q + k];
+#pragma GCC unroll 4
+            for (size_t i = 0; i < H; i++)
+                z[r][i] += xv * w[i];
+        }
+    }
+#pragma GCC unroll 4
+    for (size_t r = 0; r < R; r++)
+#pragma GCC unroll 4
+        for (size_t i = 0; i < H; i++)
+            tanh_vec(&z[r][i]);
+#pragma GCC unroll 4
+    for (size_t r = 0; r < R; r++) {
+        /* z[r] now holds the units' outputs; the output unit's input is
+         * their weighted sum, added lane by lane, then the eight lanes
+         * in a fixed order */
+        tanh_vd s = z[r][0] * vv[0];
+#pragma GCC unroll 4
+        for (size_t i = 1; i < H; i++)
+            s += z[r][i] * vv[i];
+        double out = f->c + (((s[0] + s[1]) + (s[2] + s[3]))
+                             + ((s[4] + s[5]) + (s[6] + s[7])));
+        double tr = f->t[r0 + r], d;
+        if (f->classify) {
+            S->loss += softplus(out) - tr * out;
+            d = sigmoid(out) - tr;
+        } else {
+            double e = out - tr;
+            S->loss += 0.5 * e * e;
+            d = e;
+        }
+        if (!f->want_grad)
+            continue;
+        S->gc += d;
+        double *D = f->D + (r0 + r) * h;
+#pragma GCC unroll 4
+        for (size_t i = 0; i < H; i++) {
+            const tanh_vd a = z[r][i];
+            tanh_vd dl = (d * vv[i]) * (1 - a * a);
+            S->gb[i] += dl;
+            S->gv[i] += d * a;
+            memcpy(D + i * TANH_LANES, &dl, sizeof dl);
+        }
+    }
+}
+
+/* All the rows of f, four at a time, then one at a time; H as in
+ * fused_group, 1 to 4. */
+static inline __attribute__((always_inline)) void
+fused_rows_h(fused *f, const size_t H)
+{
+    fused_sums S;
+    S.loss = 0;
+    S.gc = *f->gc;
+#pragma GCC unroll 4
+    for (size_t i = 0; i < H; i++) {
+        memcpy(&S.gb[i], f->gb + i * TANH_LANES, sizeof S.gb[i]);
+        memcpy(&S.gv[i], f->gv + i * TANH_LANES, sizeof S.gv[i]);
+    }
+    if (f->idx != NULL)
+        for (size_t r = 0; r < FUSED_AHEAD && r < f->rows; r++) {
+            const double *ahead = f->Zs + (size_t)f->idx[r] * f->q;
+            for (size_t c = 0; c < f->q; c += TANH_LANES)
+                __builtin_prefetch(ahead + c);
+        }
+    size_t r0 = 0;
+    for (; r0 + 4 <= f->rows; r0 += 4) {
+        if (f->idx != NULL)
+            fused_fetch(f, r0, 4);
+        fused_group(f, &S, r0, 4, H);
+    }
+    for (; r0 < f->rows; r0++) {
+        if (f->idx != NULL)
+            fused_fetch(f, r0, 1);
+        fused_group(f, &S, r0, 1, H);
+    }
+    f->loss = S.loss;
+    *f->gc = S.gc;
+#pragma GCC unroll 4
+    for (size_t i = 0; i < H; i++) {
+        memcpy(f->gb + i * TANH_LANES, &S.gb[i], sizeof S.gb[i]);
+        memcpy(f->gv + i * TANH_LANES, &S.gv[i], sizeof S.gv[i]);
+    }
+}
+
+__attribute__((target_clones("avx512f", "avx2", "default")))
+static void fused_rows(fused *f, size_t H)
+{
+    switch (H) {
+    case 1: fused_rows_h(f, 1); break;
+    case 2: fused_rows_h(f, 2); break;
+    case 3: fused_rows_h(f, 3); break;
+    default: fused_rows_h(f, 4); break;
+    }
+}
+
+/* Whether fused_rows serves a network of these layers (above). */
+static int fused_fits(size_t L, const size_t *units)
+{
+    return L == 2 && units[2] == 1 && units[1] % TANH_LANES == 0
+           && units[1] >= TANH_LANES && units[1] <= 4 * TANH_LANES;
+}
+
 /* A lane's copy of the weights, built by the lane at the start of a
  * pass: each layer's W transposed into ln->wt, so that the forward
  * product is in W' with both operands untransposed (OpenBLAS 0.3.21 ran
@@ -533,6 +748,29 @@ static void lane_pass(const pass *p, size_t k)
     for (size_t r0 = 0; r0 < b - a; r0 += w->rows) {
         size_t rows = b - a - r0 < w->rows ? b - a - r0 : w->rows;
         const double *Zb = p->Z + (a + r0) * q, *tb = p->t + a + r0;
+        if (fused_fits(L, units)) {
+            const size_t h = units[1];
+            double *gW = ln->grad, *gb = gW + h * q, *gv = gb + h;
+            fused f = { Zb, tb, rows, q, ln->wt, p->theta + h * q,
+                        p->theta + h * q + h, p->theta[h * q + 2 * h],
+                        p->classify, p->want_grad, ln->delta[0], gb, gv,
+                        gv + h, 0, NULL, NULL, NULL };
+            if (p->idx != NULL) {
+                /* the kernel gathers the rows as it goes */
+                f.X = Zb = ln->gz;
+                f.t = ln->gt;
+                f.idx = p->idx + a + r0;
+                f.Zs = p->Z;
+                f.ts = p->t;
+            }
+            fused_rows(&f, h / TANH_LANES);
+            sum += f.loss;
+            /* gW += D' X, the input weights' gradient */
+            if (p->want_grad)
+                gemm(CblasTrans, CblasNoTrans, h, q, rows, ln->delta[0], h,
+                     Zb, q, 1.0, gW, q);
+            continue;
+        }
         if (p->idx != NULL) {
             gather(ln, p->Z, p->t, p->idx + a + r0, rows, q);
             Zb = ln->gz;

@@ -165,6 +165,26 @@ static void test_network_gradient_matches_finite_differences(void **state)
     check_gradient(2, none, 0, 0.1, 31);
 }
 
+/* One hidden layer of 8 to 32 units (a multiple of 8) runs through
+ * network.c's fused kernel rather than its general layers: the same
+ * checks for each width it serves, with inputs none, few and more than a
+ * vector, rows in groups of four and a remainder (23 rows, blocks of 7),
+ * and over lanes (1,100 rows, blocks of 300). */
+static void test_network_gradient_of_the_fused_layer(void **state)
+{
+    (void)state;
+    const size_t shapes[][3] = { { 3, 8, 1 }, { 11, 16, 1 }, { 2, 24, 1 },
+                                 { 9, 32, 1 }, { 0, 8, 1 } };
+    for (size_t s = 0; s < sizeof shapes / sizeof shapes[0]; s++)
+        for (int classify = 0; classify <= 1; classify++) {
+            check_gradient_rows(2, shapes[s], classify, classify ? 0 : 0.29,
+                                61 + s * 2 + (size_t)classify, 23, 7);
+            if (s == 1)
+                check_gradient_rows(2, shapes[s], classify, 0.05,
+                                    71 + (size_t)classify, 1100, 300);
+        }
+}
+
 /* ------------------------------------------------------------ learning */
 
 /* XOR-like classes: y = 1 when x1 x2 > 0, x uniform on [-1, 1]^2. No
@@ -883,6 +903,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_network_gradient_matches_finite_differences),
         cmocka_unit_test(test_network_gradient_over_lanes),
+        cmocka_unit_test(test_network_gradient_of_the_fused_layer),
         cmocka_unit_test(test_network_threads_do_not_change_the_weights),
         cmocka_unit_test(test_network_threads_do_not_change_wide_layers),
         cmocka_unit_test(test_network_adam_uses_every_row_once_an_epoch),
