@@ -421,9 +421,17 @@ static void outer_slope(double *restrict dp, double *restrict gb,
  * hidden deltas into a buffer, and the biases' and output weights'
  * gradients. The input weights' gradient, deltas' times inputs over the
  * whole block, stays a cblas_dgemm (its inner dimension is the block's
- * rows: a shape OpenBLAS runs well). Each clone performs the same
- * correctly rounded operations in the same order (ISO C: no contraction),
- * so, as for tanh_block, every clone gives the same bits. */
+ * rows: a shape OpenBLAS runs well). Unlike tanh_block, its clones for
+ * processors with fused multiply-add (AVX-512, and AVX2 with FMA) contract
+ * a * b + c into one rounding (fp-contract=fast): the unit sums are the
+ * products that the speed goal counts, and a whole L-BFGS epoch of
+ * tests/bench_net.c on one thread ran 1.2 to 1.6 times as fast so (five
+ * runs each, interleaved, 2026-12-02). A clone's bits therefore differ from
+ * the plain clone's; one machine always runs the same clone, so a job
+ * still gives the same workbook, bit for bit, on the same machine. The
+ * tanh inlined here stays within 3.92 units in the last place of tanhl
+ * with or without contraction (2^21 points of [-20, 20] and 2^21 from
+ * 2^-1074 to 2^6, measured for the AVX-512 clone both ways). */
 typedef struct fused {
     const double *X, *t;    /* rows x q inputs, their targets */
     size_t rows, q;
@@ -597,7 +605,8 @@ fused_rows_h(fused *f, const size_t H)
     }
 }
 
-__attribute__((target_clones("avx512f", "avx2", "default")))
+__attribute__((target_clones("avx512f", "arch=haswell", "default"),
+               optimize("fp-contract=fast")))
 static void fused_rows(fused *f, size_t H)
 {
     switch (H) {
