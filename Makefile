@@ -54,6 +54,12 @@ $(BUILD)/%.o: %.c
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -MMD -MP -c -o $@ $<
 
+# network.c's Adam update vectorizes only when sqrt need not set errno (it
+# is never given a negative there; GCC ignores the flag as a function
+# attribute), and with the vectorizer's usual cost model rather than -O2's
+# "very cheap" one, which refuses loops of unknown length.
+$(BUILD)/engine/network.o: CFLAGS += -fno-math-errno -fvect-cost-model=dynamic
+
 # A unit test links the module objects; helpers in tests/testutil.h.
 $(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h tests/ziptest.h tests/tabletest.h $(LIB_OBJ)
 	@mkdir -p $(dir $@)
