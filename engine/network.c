@@ -1296,10 +1296,14 @@ static void deal_count(void *ctx, size_t member, size_t size)
         gsl_rng *r = &stream;
         gsl_rng_set(r, mix_seed(d->seed, k));
         size_t *count = f->count + k * f->count_stride;
+        uint32_t *batch_of = f->batch_of;
         memset(count, 0, B * sizeof *count);
-        for (size_t i = n * k / d->parts; i < n * (k + 1) / d->parts; i++) {
+        /* the bounds in locals: count[] is of size_t, as d->parts is, so
+         * the compiler would otherwise divide again at every row */
+        const size_t first = n * k / d->parts, end = n * (k + 1) / d->parts;
+        for (size_t i = first; i < end; i++) {
             uint32_t b = below(r, (uint32_t)B);
-            f->batch_of[i] = b;
+            batch_of[i] = b;
             count[b]++;
         }
     }
@@ -1313,8 +1317,11 @@ static void deal_place(void *ctx, size_t member, size_t size)
     for (size_t k = member; k < d->parts; k += size) {
         /* the part's counts are now its next free places */
         size_t *at = f->count + k * f->count_stride;
-        for (size_t i = n * k / d->parts; i < n * (k + 1) / d->parts; i++)
-            f->order[at[f->batch_of[i]]++] = (uint32_t)i;
+        const uint32_t *batch_of = f->batch_of;
+        uint32_t *order = f->order;
+        const size_t first = n * k / d->parts, end = n * (k + 1) / d->parts;
+        for (size_t i = first; i < end; i++)
+            order[at[batch_of[i]]++] = (uint32_t)i;
     }
 }
 
