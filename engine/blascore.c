@@ -13,6 +13,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
+#include <sys/auxv.h>
 #include <unistd.h>
 
 #include "blascore.h"
@@ -56,6 +57,12 @@ void blascore_restart(char **argv)
 {
     const char *better = blascore_better();
     if (better == NULL || getenv("OPENBLAS_CORETYPE") != NULL)
+        return;
+    /* /proc/self/exe is the program only when the kernel loaded it with
+     * its program interpreter; started as `ld-linux... rowfit`, it is
+     * the interpreter itself, and the auxiliary vector then has no
+     * interpreter base (getauxval(3)) */
+    if (getauxval(AT_BASE) == 0)
         return;
     if (setenv("OPENBLAS_CORETYPE", better, 1) != 0)
         return;

@@ -22,7 +22,8 @@ const char *blascore_better(void);
  * /proc/self/exe with the same argv); returns only when nothing needed
  * doing or the restart failed, and then the program goes on with the
  * kernels it has. The variable, once set, prevents a second restart.
- * For main() alone, first thing, before any thread of the program's own. */
+ * For a program's main() (rowfit's and the benches'), first thing, before
+ * any thread of the program's own. */
 void blascore_restart(char **argv);
 
 #endif

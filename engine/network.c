@@ -456,6 +456,33 @@ typedef struct fused {
  * 32 ran alike, and no prefetch at all 1.5 times as slow. */
 #define FUSED_AHEAD 16
 
+/* Asks the memory for a row of q values (every cache line of it) and its
+ * target, ahead of their use. */
+static inline __attribute__((always_inline)) void
+ask_row(const double *row, const double *target, size_t q)
+{
+    for (size_t c = 0; c < q; c += TANH_LANES)
+        __builtin_prefetch(row + c);
+    if (q > 0)
+        __builtin_prefetch(row + q - 1);
+    __builtin_prefetch(target);
+}
+
+/* dst[0 .. q-1] = src[0 .. q-1], a vector at a time (a call to memcpy a
+ * row cost more). */
+static inline __attribute__((always_inline)) void
+copy_row(double *restrict dst, const double *restrict src, size_t q)
+{
+    size_t c = 0;
+    for (; c + TANH_LANES <= q; c += TANH_LANES) {
+        tanh_vd v;
+        memcpy(&v, src + c, sizeof v);
+        memcpy(dst + c, &v, sizeof v);
+    }
+    for (; c < q; c++)
+        dst[c] = src[c];
+}
+
 /* Copies rows r0 .. r0 + R - 1 of a gathering kernel into f->X and f->t,
  * and asks for the rows FUSED_AHEAD later: the gather runs between the
  * groups' arithmetic, so the memory works while the vector units do. */
@@ -466,23 +493,10 @@ fused_fetch(const fused *f, size_t r0, const size_t R)
 #pragma GCC unroll 4
     for (size_t r = r0; r < r0 + R; r++) {
         if (r + FUSED_AHEAD < f->rows) {
-            const double *ahead = f->Zs + (size_t)f->idx[r + FUSED_AHEAD] * q;
-            for (size_t c = 0; c < q; c += TANH_LANES)
-                __builtin_prefetch(ahead + c);
-            if (q > 0)
-                __builtin_prefetch(ahead + q - 1);
-            __builtin_prefetch(f->ts + f->idx[r + FUSED_AHEAD]);
+            const uint32_t ahead = f->idx[r + FUSED_AHEAD];
+            ask_row(f->Zs + (size_t)ahead * q, f->ts + ahead, q);
         }
-        const double *src = f->Zs + (size_t)f->idx[r] * q;
-        double *dst = (double *)f->X + r * q;
-        size_t c = 0;
-        for (; c + TANH_LANES <= q; c += TANH_LANES) {
-            tanh_vd v;
-            memcpy(&v, src + c, sizeof v);
-            memcpy(dst + c, &v, sizeof v);
-        }
-        for (; c < q; c++)
-            dst[c] = src[c];
+        copy_row((double *)f->X + r * q, f->Zs + (size_t)f->idx[r] * q, q);
         ((double *)f->t)[r] = f->ts[f->idx[r]];
     }
 }
@@ -572,13 +586,16 @@ fused_group(const fused *f, fused_sums *S, size_t r0, const size_t R,
 static inline __attribute__((always_inline)) void
 fused_rows_h(fused *f, const size_t H)
 {
-    fused_sums S;
-    S.loss = 0;
-    S.gc = *f->gc;
+    /* the gradient's sums, read and written back only with the gradient:
+     * without it they may never have been set */
+    fused_sums S = { .loss = 0 };
+    if (f->want_grad) {
+        S.gc = *f->gc;
 #pragma GCC unroll 4
-    for (size_t i = 0; i < H; i++) {
-        memcpy(&S.gb[i], f->gb + i * TANH_LANES, sizeof S.gb[i]);
-        memcpy(&S.gv[i], f->gv + i * TANH_LANES, sizeof S.gv[i]);
+        for (size_t i = 0; i < H; i++) {
+            memcpy(&S.gb[i], f->gb + i * TANH_LANES, sizeof S.gb[i]);
+            memcpy(&S.gv[i], f->gv + i * TANH_LANES, sizeof S.gv[i]);
+        }
     }
     if (f->idx != NULL)
         for (size_t r = 0; r < FUSED_AHEAD && r < f->rows; r++) {
@@ -598,6 +615,8 @@ fused_rows_h(fused *f, const size_t H)
         fused_group(f, &S, r0, 1, H);
     }
     f->loss = S.loss;
+    if (!f->want_grad)
+        return;
     *f->gc = S.gc;
 #pragma GCC unroll 4
     for (size_t i = 0; i < H; i++) {
@@ -606,7 +625,10 @@ fused_rows_h(fused *f, const size_t H)
     }
 }
 
-__attribute__((target_clones("avx512f", "arch=haswell", "default"),
+/* The clones: AVX-512, the x86-64-v3 level (AVX2 and FMA; GCC picks it
+ * by those features, where "arch=haswell" would pick it by processor
+ * model, Intel Haswell alone) and the baseline. */
+__attribute__((target_clones("avx512f", "arch=x86-64-v3", "default"),
                optimize("fp-contract=fast")))
 static void fused_rows(fused *f, size_t H)
 {
@@ -709,29 +731,18 @@ typedef struct pass {
  * one (common practice: enough to cover a memory access). */
 #define GATHER_AHEAD 32
 
-/* ln->gz, ln->gt = rows idx[0..rows-1] of Z and t (q values a row). The
- * rows are scattered over all the data, so each is fetched from memory;
- * the copy is a vector at a time (a call to memcpy a row cost more). */
+/* ln->gz, ln->gt = rows idx[0..rows-1] of Z and t (q values a row), for
+ * the general layers. The rows are scattered over all the data, so each
+ * is asked of the memory GATHER_AHEAD rows early. */
 static void gather(lane *ln, const double *Z, const double *t,
                    const uint32_t *idx, size_t rows, size_t q)
 {
     for (size_t i = 0; i < rows; i++) {
         if (i + GATHER_AHEAD < rows) {
-            const double *ahead = Z + (size_t)idx[i + GATHER_AHEAD] * q;
-            for (size_t c = 0; c < q; c += 8)
-                __builtin_prefetch(ahead + c);
-            __builtin_prefetch(t + idx[i + GATHER_AHEAD]);
+            const uint32_t ahead = idx[i + GATHER_AHEAD];
+            ask_row(Z + (size_t)ahead * q, t + ahead, q);
         }
-        const double *src = Z + (size_t)idx[i] * q;
-        double *dst = ln->gz + i * q;
-        size_t c = 0;
-        for (; c + TANH_LANES <= q; c += TANH_LANES) {
-            tanh_vd v;
-            memcpy(&v, src + c, sizeof v);
-            memcpy(dst + c, &v, sizeof v);
-        }
-        for (; c < q; c++)
-            dst[c] = src[c];
+        copy_row(ln->gz + i * q, Z + (size_t)idx[i] * q, q);
         ln->gt[i] = t[idx[i]];
     }
 }

@@ -605,22 +605,47 @@ def products_line(p):
     return m.group(1)
 
 
+def cpu_flags():
+    """The processor's feature flags from /proc/cpuinfo (Linux's proc(5));
+    none where the file has no flags line (not x86)."""
+    with open("/proc/cpuinfo") as f:
+        line = next((l for l in f if l.startswith("flags")), "flags:")
+    return set(line.split(":", 1)[1].split())
+
+
+def without_coretype():
+    return {k: v for k, v in os.environ.items() if k != "OPENBLAS_CORETYPE"}
+
+
 @test
 def test_version_names_kernels_that_the_processor_can_run():
     # Debian 12's OpenBLAS falls back to its SSE3 "Prescott" kernels on
     # processors newer than it (seen on an AVX-512 Xeon, family 6 model
     # 207; engine/blascore.c); rowfit then restarts itself with
-    # OPENBLAS_CORETYPE. The processor's features from /proc/cpuinfo
-    # (Linux's proc(5)); the kernel sets' needs from OpenBLAS's
-    # kernel/x86_64/KERNEL.* (from memory).
-    with open("/proc/cpuinfo") as f:
-        flags = set(next(l for l in f if l.startswith("flags")).split(":")[1].split())
-    name = products_line(rowfit(["--version"], TMP))
-    if "avx" in flags:
+    # OPENBLAS_CORETYPE, so the kernels it names are never the SSE3 ones
+    # on a processor with AVX.
+    p = subprocess.run([ROWFIT, "--version"], cwd=TMP, capture_output=True,
+                       text=True, timeout=60, env=without_coretype())
+    assert p.returncode == 0, describe(p)
+    name = products_line(p)
+    if "avx" in cpu_flags():
         assert name.lower() != "prescott", \
             "OpenBLAS runs its SSE3 kernels on a processor with AVX"
-    if {"avx512f", "avx512cd", "avx512bw", "avx512dq", "avx512vl"} <= flags:
-        assert name.lower() in ("skylakex", "cooperlake", "sapphirerapids"), name
+
+
+@test
+def test_a_run_through_the_program_loader_is_not_restarted():
+    # started as `ld.so rowfit`, /proc/self/exe is the loader, which must
+    # not be run again in rowfit's place (the path is Debian's for
+    # x86-64: the ELF interpreter that rowfit names)
+    loader = "/lib64/ld-linux-x86-64.so.2"
+    if not os.path.exists(loader):
+        return
+    p = subprocess.run([loader, ROWFIT, "--version"], cwd=TMP,
+                       capture_output=True, text=True, timeout=60,
+                       env=without_coretype())
+    assert p.returncode == 0, describe(p)
+    assert p.stdout.startswith("rowfit "), p.stdout[:200]
 
 
 @test
