@@ -652,10 +652,12 @@ static int fused_fits(size_t L, const size_t *units)
  * product is in W' with both operands untransposed (OpenBLAS 0.3.21 ran
  * that form 1.6 times as fast
  * as in times W transposed on the 128 x 20 x 16 and 512 x 20 x 16
- * products of tests/bench_net.c), and TANH_LANES rows of each hidden
- * layer's biases for tanh_block. */
+ * products of tests/bench_net.c), and, when tiles, TANH_LANES rows of
+ * each hidden layer's biases for tanh_block (the fused kernel reads the
+ * biases where they are: their small copies took 1.4% of an Adam epoch
+ * of tests/bench_net.c). */
 static void lane_weights(size_t L, const size_t *units, const double *theta,
-                         lane *ln)
+                         lane *ln, int tiles)
 {
     const double *th = theta;
     double *wt = ln->wt, *tile = ln->tile;
@@ -664,7 +666,7 @@ static void lane_weights(size_t L, const size_t *units, const double *theta,
         for (size_t j = 0; j < no; j++)
             for (size_t k = 0; k < ni; k++)
                 wt[k * no + j] = th[j * ni + k];
-        if (l + 1 < L) {
+        if (tiles && l + 1 < L) {
             for (size_t i = 0; i < TANH_LANES; i++)
                 memcpy(tile + i * no, th + no * ni, no * sizeof *th);
             tile += TANH_LANES * no;
@@ -762,7 +764,7 @@ static void lane_pass(const pass *p, size_t k)
     lane *ln = &w->lane[k];
     const size_t L = p->L, *units = p->units, q = units[0];
     const size_t a = p->n * k / p->lanes, b = p->n * (k + 1) / p->lanes;
-    lane_weights(L, units, p->theta, ln);
+    lane_weights(L, units, p->theta, ln, !fused_fits(L, units));
     if (p->want_grad)
         memset(ln->grad, 0, w->nw * sizeof *ln->grad);
     long double sum = 0;
