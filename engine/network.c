@@ -629,9 +629,16 @@ fused_rows_h(fused *f, const size_t H)
 
 /* The clones: AVX-512, the x86-64-v3 level (AVX2 and FMA; GCC picks it
  * by those features, where "arch=haswell" would pick it by processor
- * model, Intel Haswell alone) and the baseline. */
-__attribute__((target_clones("avx512f", "arch=x86-64-v3", "default"),
-               optimize("fp-contract=fast")))
+ * model, Intel Haswell alone) and the baseline. Clang has no optimize
+ * attribute; it contracts within an expression only (its default). */
+#if defined(__clang__)
+#define FUSED_CONTRACT
+#else
+#define FUSED_CONTRACT __attribute__((optimize("fp-contract=fast")))
+#endif
+
+__attribute__((target_clones("avx512f", "arch=x86-64-v3", "default")))
+FUSED_CONTRACT
 static void fused_rows(fused *f, size_t H)
 {
     switch (H) {

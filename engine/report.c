@@ -926,8 +926,8 @@ static void summary_cv(writer_sheet *s, uint32_t *r, const fit_result *rm)
     static const char *const lin_note[] = {
         "root mean square of the out-of-fold errors, over every fitted row",
         "mean absolute out-of-fold error, over every fitted row",
-        "1 - (sum of squared out-of-fold errors) / (sum of squares about "
-        "the mean target)" };
+        ("1 - (sum of squared out-of-fold errors) / (sum of squares about "
+         "the mean target)") };
     static const char *const cls_note[] = {
         "share of fitted rows whose out-of-fold label is their class",
         "AUC of the out-of-fold probabilities, every fitted row",
@@ -1339,8 +1339,8 @@ static rf_status write_validation(writer *w, const design *d,
         static const char *const why[3] = {
             "mean over the folds where the measure is defined",
             "standard deviation over the folds (divisor folds - 1)",
-            "every fitted row's out-of-fold value at once (Summary's cv "
-            "measures)" };
+            ("every fitted row's out-of-fold value at once (Summary's cv "
+             "measures)") };
         for (int a = 0; a < 3; a++, r++) {
             writer_text(s, r, 0, what[a], WFMT_BOLD);
             for (int k = 0; k < VALIDATE_MEASURES; k++)
