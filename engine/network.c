@@ -435,7 +435,8 @@ static void outer_slope(double *restrict dp, double *restrict gb,
  * with or without contraction (2^21 points of [-20, 20] and 2^21 from
  * 2^-1074 to 2^6, measured for the AVX-512 clone both ways). */
 typedef struct fused {
-    const double *X, *t;    /* rows x q inputs, their targets */
+    const double *X, *t;    /* rows x q inputs, their targets (with idx,
+                               the gathered copies gx, gy) */
     size_t rows, q;
     const double *wt;       /* the input weights transposed, q x h */
     const double *b, *v;    /* h hidden biases, h output weights */
@@ -446,9 +447,10 @@ typedef struct fused {
                                weights, output bias */
     long double loss;       /* sum of the rows' losses */
     /* with idx, the rows are idx[0 .. rows-1] of Zs and ts, gathered into
-     * X and t (then writable) as the kernel reaches them */
+     * gx and gy as the kernel reaches them */
     const uint32_t *idx;
     const double *Zs, *ts;
+    double *gx, *gy;
 } fused;
 
 /* Rows ahead of the one being gathered that fused_fetch asks the memory
@@ -498,8 +500,8 @@ fused_fetch(const fused *f, size_t r0, const size_t R)
             const uint32_t ahead = f->idx[r + FUSED_AHEAD];
             ask_row(f->Zs + (size_t)ahead * q, f->ts + ahead, q);
         }
-        copy_row((double *)f->X + r * q, f->Zs + (size_t)f->idx[r] * q, q);
-        ((double *)f->t)[r] = f->ts[f->idx[r]];
+        copy_row(f->gx + r * q, f->Zs + (size_t)f->idx[r] * q, q);
+        f->gy[r] = f->ts[f->idx[r]];
     }
 }
 
@@ -599,12 +601,10 @@ fused_rows_h(fused *f, const size_t H)
             memcpy(&S.gv[i], f->gv + i * TANH_LANES, sizeof S.gv[i]);
         }
     }
-    if (f->idx != NULL)
-        for (size_t r = 0; r < FUSED_AHEAD && r < f->rows; r++) {
-            const double *ahead = f->Zs + (size_t)f->idx[r] * f->q;
-            for (size_t c = 0; c < f->q; c += TANH_LANES)
-                __builtin_prefetch(ahead + c);
-        }
+    if (f->idx != NULL)   /* the first rows, before fused_fetch's lead */
+        for (size_t r = 0; r < FUSED_AHEAD && r < f->rows; r++)
+            ask_row(f->Zs + (size_t)f->idx[r] * f->q, f->ts + f->idx[r],
+                    f->q);
     size_t r0 = 0;
     for (; r0 + 4 <= f->rows; r0 += 4) {
         if (f->idx != NULL)
@@ -773,24 +773,26 @@ static void lane_pass(const pass *p, size_t k)
     lane *ln = &w->lane[k];
     const size_t L = p->L, *units = p->units, q = units[0];
     const size_t a = p->n * k / p->lanes, b = p->n * (k + 1) / p->lanes;
-    lane_weights(L, units, p->theta, ln, !fused_fits(L, units));
+    const int fuse = fused_fits(L, units);
+    lane_weights(L, units, p->theta, ln, !fuse);
     if (p->want_grad)
         memset(ln->grad, 0, w->nw * sizeof *ln->grad);
     long double sum = 0;
     for (size_t r0 = 0; r0 < b - a; r0 += w->rows) {
         size_t rows = b - a - r0 < w->rows ? b - a - r0 : w->rows;
         const double *Zb = p->Z + (a + r0) * q, *tb = p->t + a + r0;
-        if (fused_fits(L, units)) {
+        if (fuse) {
             const size_t h = units[1];
             double *gW = ln->grad, *gb = gW + h * q, *gv = gb + h;
             fused f = { Zb, tb, rows, q, ln->wt, p->theta + h * q,
                         p->theta + h * q + h, p->theta[h * q + 2 * h],
                         p->classify, p->want_grad, ln->delta[0], gb, gv,
-                        gv + h, 0, NULL, NULL, NULL };
+                        gv + h, 0, NULL, NULL, NULL, NULL, NULL };
             if (p->idx != NULL) {
                 /* the kernel gathers the rows as it goes */
-                f.X = Zb = ln->gz;
-                f.t = ln->gt;
+                f.X = f.gx = ln->gz;
+                f.t = f.gy = ln->gt;
+                Zb = ln->gz;
                 f.idx = p->idx + a + r0;
                 f.Zs = p->Z;
                 f.ts = p->t;
