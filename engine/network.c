@@ -472,16 +472,26 @@ ask_row(const double *row, const double *target, size_t q)
     __builtin_prefetch(target);
 }
 
-/* dst[0 .. q-1] = src[0 .. q-1], a vector at a time (a call to memcpy a
- * row cost more). */
+/* dst[0 .. q-1] = src[0 .. q-1], a vector at a time, the last vector
+ * overlapping the one before it when q is not a multiple of the vector
+ * (the two rows do not overlap each other). A call to memcpy a row cost
+ * more; and GCC had turned the scalar tail loop into such a call (6.8% of
+ * both threads' time in an Adam epoch of tests/bench_net.c, whose 20
+ * inputs are two vectors and four more), which the Makefile's
+ * -fno-tree-loop-distribute-patterns for network.c also forbids. */
 static inline __attribute__((always_inline)) void
 copy_row(double *restrict dst, const double *restrict src, size_t q)
 {
+    tanh_vd v;
     size_t c = 0;
     for (; c + TANH_LANES <= q; c += TANH_LANES) {
-        tanh_vd v;
         memcpy(&v, src + c, sizeof v);
         memcpy(dst + c, &v, sizeof v);
+    }
+    if (c < q && q >= TANH_LANES) {
+        memcpy(&v, src + q - TANH_LANES, sizeof v);
+        memcpy(dst + q - TANH_LANES, &v, sizeof v);
+        return;
     }
     for (; c < q; c++)
         dst[c] = src[c];
@@ -945,6 +955,16 @@ double network_loss_grad(size_t L, const size_t *units, int classify,
                          double *grad, double *mean_loss, network_work *w)
 {
     pass p = { L, units, classify, 0, theta, Z, t, NULL, n, 1, w };
+    return run_pass(&p, lambda, grad, mean_loss);
+}
+
+double network_loss_grad_rows(size_t L, const size_t *units, int classify,
+                              const double *theta, const double *Z,
+                              const double *t, const uint32_t *idx, size_t n,
+                              double lambda, double *grad, double *mean_loss,
+                              network_work *w)
+{
+    pass p = { L, units, classify, 0, theta, Z, t, idx, n, 1, w };
     return run_pass(&p, lambda, grad, mean_loss);
 }
 

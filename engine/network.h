@@ -11,6 +11,7 @@
 #define ROWFIT_NETWORK_H
 
 #include <stddef.h>
+#include <stdint.h>
 
 #include "../io/error.h"
 
@@ -243,5 +244,16 @@ double network_loss_grad(size_t n_layers, const size_t *units, int classify,
                          const double *theta, const double *Z,
                          const double *t, size_t n, double lambda,
                          double *grad, double *mean_loss, network_work *w);
+
+/* The same over rows idx[0 .. n-1] of Z and t, in that order, as Adam's
+ * batches read them (gathered as the pass goes, not copied first): the
+ * same bits as network_loss_grad over those rows copied in that order.
+ * Every idx[i] must be a row of Z. */
+double network_loss_grad_rows(size_t n_layers, const size_t *units,
+                              int classify, const double *theta,
+                              const double *Z, const double *t,
+                              const uint32_t *idx, size_t n, double lambda,
+                              double *grad, double *mean_loss,
+                              network_work *w);
 
 #endif

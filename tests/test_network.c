@@ -185,6 +185,91 @@ static void test_network_gradient_of_the_fused_layer(void **state)
         }
 }
 
+/* Adam's batches gather their rows as the pass goes
+ * (network_loss_grad_rows): the objective, mean loss and gradient over
+ * rows idx of Z are the same bits as over those rows copied out first in
+ * that order, for the fused kernel's widths and the general layers, inputs
+ * fewer than a vector, a whole vector, and one or two vectors and a part
+ * (the part's copy overlaps the vector before it), rows drawn with
+ * repeats and in no order, over blocks and lanes. Exact equality, as the
+ * arithmetic is the same; a row gathered from the wrong place, or a part
+ * of one, changes the bits. */
+static void check_gathered(size_t L, const size_t *units, int classify,
+                           unsigned long seed, size_t n, size_t block)
+{
+    const size_t m = 3000, q = units[0];
+    gsl_rng *r = rng_new(seed);
+    size_t nw = 0;
+    for (size_t l = 0; l < L; l++)
+        nw += units[l + 1] * units[l] + units[l + 1];
+    double *theta = malloc(nw * sizeof *theta);
+    double *g1 = malloc(nw * sizeof *g1), *g2 = malloc(nw * sizeof *g2);
+    double *Z = malloc((m * q > 0 ? m * q : 1) * sizeof *Z);
+    double *Zc = malloc((n * q > 0 ? n * q : 1) * sizeof *Zc);
+    double *t = malloc(m * sizeof *t), *tc = malloc(n * sizeof *tc);
+    uint32_t *idx = malloc(n * sizeof *idx);
+    assert_non_null(theta);
+    assert_non_null(g1);
+    assert_non_null(g2);
+    assert_non_null(Z);
+    assert_non_null(Zc);
+    assert_non_null(t);
+    assert_non_null(tc);
+    assert_non_null(idx);
+    for (size_t i = 0; i < nw; i++)
+        theta[i] = 1.3 * (2 * gsl_rng_uniform(r) - 1);
+    for (size_t i = 0; i < m * q; i++)
+        Z[i] = gsl_ran_gaussian(r, 1.0);
+    for (size_t i = 0; i < m; i++)
+        t[i] = classify ? (double)(gsl_rng_uniform(r) < 0.4)
+                        : gsl_ran_gaussian(r, 1.0);
+    for (size_t i = 0; i < n; i++) {
+        idx[i] = (uint32_t)gsl_rng_uniform_int(r, m);
+        memcpy(Zc + i * q, Z + (size_t)idx[i] * q, q * sizeof *Z);
+        tc[i] = t[idx[i]];
+    }
+    network_work *w = network_work_alloc(L, units, block);
+    assert_non_null(w);
+    double ml1, ml2;
+    double f1 = network_loss_grad(L, units, classify, theta, Zc, tc, n, 0.1,
+                                  g1, &ml1, w);
+    double f2 = network_loss_grad_rows(L, units, classify, theta, Z, t, idx,
+                                       n, 0.1, g2, &ml2, w);
+    if (memcmp(&f1, &f2, sizeof f1) != 0 || memcmp(&ml1, &ml2, sizeof ml1)
+        || memcmp(g1, g2, nw * sizeof *g1) != 0)
+        fail_msg("shape %zu-%zu, %zu rows: gathered objective %.17g, copied "
+                 "%.17g", q, units[1], n, f2, f1);
+    network_work_free(w);
+    free(theta);
+    free(g1);
+    free(g2);
+    free(Z);
+    free(Zc);
+    free(t);
+    free(tc);
+    free(idx);
+    gsl_rng_free(r);
+}
+
+static void test_network_gathered_rows_equal_copied_rows(void **state)
+{
+    (void)state;
+    const size_t fused[][3] = { { 3, 8, 1 }, { 8, 8, 1 }, { 11, 16, 1 },
+                                { 20, 16, 1 }, { 17, 24, 1 }, { 9, 32, 1 },
+                                { 0, 8, 1 } };
+    const size_t general[3] = { 20, 12, 1 }, deep[4] = { 11, 5, 4, 1 };
+    for (int classify = 0; classify <= 1; classify++) {
+        unsigned long seed = 81 + 20 * (unsigned long)classify;
+        for (size_t s = 0; s < sizeof fused / sizeof fused[0]; s++) {
+            check_gathered(2, fused[s], classify, seed++, 23, 7);
+            check_gathered(2, fused[s], classify, seed++, 1100, 300);
+        }
+        check_gathered(2, general, classify, seed++, 1100, 300);
+        check_gathered(3, deep, classify, seed++, 23, 7);
+        check_gathered(3, deep, classify, seed++, 1100, 300);
+    }
+}
+
 /* ------------------------------------------------------------ learning */
 
 /* XOR-like classes: y = 1 when x1 x2 > 0, x uniform on [-1, 1]^2. No
@@ -904,6 +989,7 @@ int main(void)
         cmocka_unit_test(test_network_gradient_matches_finite_differences),
         cmocka_unit_test(test_network_gradient_over_lanes),
         cmocka_unit_test(test_network_gradient_of_the_fused_layer),
+        cmocka_unit_test(test_network_gathered_rows_equal_copied_rows),
         cmocka_unit_test(test_network_threads_do_not_change_the_weights),
         cmocka_unit_test(test_network_threads_do_not_change_wide_layers),
         cmocka_unit_test(test_network_adam_uses_every_row_once_an_epoch),
