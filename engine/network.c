@@ -968,23 +968,33 @@ double network_loss_grad_rows(size_t L, const size_t *units, int classify,
     return run_pass(&p, lambda, grad, mean_loss);
 }
 
-/* Advises the kernel to back the whole 2 MB pages inside [p, p + bytes)
- * with huge pages (madvise(2), MADV_HUGEPAGE; Debian's kernel then uses
- * them for such memory only). Adam reads each batch's rows scattered over
- * all the training rows, and with 4 KB pages nearly every row missed the
- * processor's page cache (its TLB); so advised, the standardized rows of
- * tests/bench_net.c (16 MB) were 12 MB of huge pages, and an Adam epoch
- * took 5% to 7% less time (six runs each, interleaved, one and two
- * threads). Only advice: where it is refused, nothing changes. The block
- * stays a malloc block, freed by free. */
+/* Room for count doubles, the standardized rows, in *block (to free):
+ * from 4 MB up, placed on a 2 MB boundary and rounded up to whole 2 MB
+ * pages, which the kernel is advised to back with huge pages (madvise(2),
+ * MADV_HUGEPAGE; Debian's kernel then uses them for such memory only).
+ * Adam reads each batch's rows scattered over all the training rows, and
+ * with 4 KB pages nearly every row missed the processor's page cache (its
+ * TLB). Advising only the whole pages inside a plain malloc block left
+ * the rows of tests/bench_net.c (15.3 MB) 12 MB of huge pages and the
+ * rest, at the start, in 4 KB pages: the first lane of each batch read
+ * them and was the slower one. The extra 2 MB is address space, touched
+ * only where rows lie. Only advice: where it is refused, nothing
+ * changes. */
 #define HUGE_PAGE ((uintptr_t)2 << 20)
 
-static void advise_huge(void *p, size_t bytes)
+static double *rows_alloc(size_t count, void **block)
 {
-    uintptr_t a = ((uintptr_t)p + HUGE_PAGE - 1) & ~(HUGE_PAGE - 1);
-    uintptr_t b = ((uintptr_t)p + bytes) & ~(HUGE_PAGE - 1);
-    if (b > a)
-        (void)madvise((void *)a, b - a, MADV_HUGEPAGE);
+    size_t bytes = (count > 0 ? count : 1) * sizeof(double);
+    if (bytes < 2 * HUGE_PAGE)
+        return *block = malloc(bytes);
+    size_t whole = (bytes + HUGE_PAGE - 1) & ~(HUGE_PAGE - 1);
+    char *p = malloc(whole + HUGE_PAGE);
+    *block = p;
+    if (p == NULL)
+        return NULL;
+    char *a = (char *)(((uintptr_t)p + HUGE_PAGE - 1) & ~(HUGE_PAGE - 1));
+    (void)madvise(a, whole, MADV_HUGEPAGE);
+    return (double *)(void *)a;
 }
 
 /* ------------------------------------------------------------ the model */
@@ -1661,6 +1671,7 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
     f.n_hold = n_hold;
     f.n_train = n - n_hold;
     double *Z = NULL, *t = NULL;
+    void *Z_block = NULL;   /* rows_alloc's, holding Z */
     char *held = NULL;
     st = RF_ENOMEM;
     network_model *m = calloc(1, sizeof *m);
@@ -1774,11 +1785,10 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
 
     /* 4. the standardized rows: training rows first, then the held-out
      * ones, each block contiguous for the products */
-    Z = malloc((n * q > 0 ? n * q : 1) * sizeof *Z);
+    Z = rows_alloc(n * q, &Z_block);
     t = malloc(n * sizeof *t);
     if (Z == NULL || t == NULL)
         goto fail;
-    advise_huge(Z, n * q * sizeof *Z);
     for (size_t i = 0, a = 0, h = f.n_train; i < n; i++) {
         size_t r = held[i] ? h++ : a++;
         for (size_t k = 0; k < q; k++)
@@ -1877,7 +1887,7 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
             m->valid_loss = n_hold ? reported(m, lv) : NAN;
         }
     }
-    free(Z);
+    free(Z_block);
     free(t);
     free(held);
     ws_free(&f);
@@ -1887,7 +1897,7 @@ rf_status network_fit(const long double *X, const double *y, size_t n,
 fail:
     if (st == RF_ENOMEM)
         error_nomem(err, NULL);
-    free(Z);
+    free(Z_block);
     free(t);
     free(held);
     ws_free(&f);
