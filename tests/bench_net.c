@@ -12,15 +12,20 @@
  * 4 q h + 6 h multiply-adds counted as two operations each, tanh and the
  * solver's own vector work not counted. Nothing is held out, so every
  * epoch is the same work and the epoch count is fixed. The time of an
- * epoch is the median over the epochs after the first (the first also
- * pays for first touches of memory; a median, because a shared machine's
- * pauses move a mean). The network trains first and the dgemm rate is
+ * epoch in one training run is the median over the epochs after the first
+ * (the first also pays for first touches of memory; a median, because a
+ * shared machine's pauses move a mean). Each solver trains three times,
+ * the solvers in turn, and is judged by its fastest run, as the dgemm
+ * rate is the best of five products: on a shared virtual machine a run
+ * can fall into seconds when a processor runs at half speed, and the goal
+ * is about what the code achieves, not about the neighbours (every run's
+ * time is printed). The network trains first and the dgemm rate is
  * measured after it: OpenBLAS's own threads keep spinning for a while
  * after a threaded product and would compete with the network's.
  *
  * Options: `--solver adam|lbfgs` runs one solver alone (for perf record);
  * `--threads N` sets network_options.threads (default: the processors);
- * `--rows N`, `--epochs N`.
+ * `--rows N`, `--epochs N`, `--runs N` (training runs of each solver).
  */
 #include <math.h>
 #include <stdio.h>
@@ -137,7 +142,7 @@ int main(int argc, char **argv)
 {
     size_t n = 100000, q = 20, h = 16;
     blascore_restart(argv);   /* the kernels rowfit itself would run */
-    long epochs = 20;
+    long epochs = 20, runs = 3;
     size_t threads_opt = 0;
     int first = 0, last = 1;   /* solvers: 0 Adam, 1 L-BFGS */
     for (int a = 1; a + 1 < argc; a += 2) {
@@ -145,6 +150,8 @@ int main(int argc, char **argv)
             n = strtoul(argv[a + 1], NULL, 10);
         else if (strcmp(argv[a], "--epochs") == 0)
             epochs = strtol(argv[a + 1], NULL, 10);
+        else if (strcmp(argv[a], "--runs") == 0)
+            runs = strtol(argv[a + 1], NULL, 10);
         else if (strcmp(argv[a], "--threads") == 0)
             threads_opt = strtoul(argv[a + 1], NULL, 10);
         else if (strcmp(argv[a], "--solver") == 0) {
@@ -173,47 +180,51 @@ int main(int argc, char **argv)
     }
     gsl_rng_free(r);
 
+    if (runs < 1)
+        runs = 1;
     double flops_row = 4.0 * (double)(q * h) + 6.0 * (double)h;
-    double per_epoch[2] = { 0, 0 };
-    for (int s = first; s <= last; s++) {
-        network_options o;
-        network_options_init(&o);
-        o.hidden[0] = h;
-        o.solver = s ? NETWORK_LBFGS : NETWORK_ADAM;
-        o.holdout = 0;
-        o.epochs = epochs;
-        o.threads = threads_opt;
-        static clock_ctx c;
-        memset(&c, 0, sizeof c);
-        o.progress = tick;
-        o.progress_ctx = &c;
-        network_model *m = NULL;
-        rf_error err;
-        memset(&err, 0, sizeof err);
-        double t0 = now();
-        if (network_fit(X, y, n, p, &o, &m, &err) != RF_OK) {
-            fprintf(stderr, "bench-net: %s\n", err.message);
-            return 1;
+    double per_epoch[2] = { INFINITY, INFINITY };   /* the fastest run's */
+    for (long run = 0; run < runs; run++)
+        for (int s = first; s <= last; s++) {
+            network_options o;
+            network_options_init(&o);
+            o.hidden[0] = h;
+            o.solver = s ? NETWORK_LBFGS : NETWORK_ADAM;
+            o.holdout = 0;
+            o.epochs = epochs;
+            o.threads = threads_opt;
+            static clock_ctx c;
+            memset(&c, 0, sizeof c);
+            o.progress = tick;
+            o.progress_ctx = &c;
+            network_model *m = NULL;
+            rf_error err;
+            memset(&err, 0, sizeof err);
+            double t0 = now();
+            if (network_fit(X, y, n, p, &o, &m, &err) != RF_OK) {
+                fprintf(stderr, "bench-net: %s\n", err.message);
+                return 1;
+            }
+            double total = now() - t0;
+            /* Adam: one pass an epoch; L-BFGS: one pass per line-search
+             * trial, nearly always one, so its epochs are a lower bound */
+            long timed = c.epochs - 1 < EPOCHS_MAX ? c.epochs - 1 : EPOCHS_MAX;
+            double per = total;
+            if (timed > 0) {
+                qsort(c.took, (size_t)timed, sizeof *c.took, by_value);
+                per = timed % 2 ? c.took[timed / 2]
+                                : (c.took[timed / 2 - 1] + c.took[timed / 2])
+                                      / 2;
+            }
+            if (per < per_epoch[s])
+                per_epoch[s] = per;
+            printf("bench-net: %s run %ld of %ld, %zu rows x %zu inputs, %zu "
+                   "hidden units, %ld epochs in %.2f s: %.1f ms an epoch "
+                   "(median); training MSE %.4g\n",
+                   network_solver_str(m->solver), run + 1, runs, n, q, h,
+                   m->epochs, total, per * 1e3, m->train_loss);
+            network_free(m);
         }
-        double total = now() - t0;
-        /* Adam: one pass an epoch; L-BFGS: one pass per line-search
-         * trial, nearly always one, so its epochs are a lower bound. The
-         * median epoch: a shared machine's pauses move a mean. */
-        long timed = c.epochs - 1 < EPOCHS_MAX ? c.epochs - 1 : EPOCHS_MAX;
-        double per = total;
-        if (timed > 0) {
-            qsort(c.took, (size_t)timed, sizeof *c.took, by_value);
-            per = timed % 2 ? c.took[timed / 2]
-                            : (c.took[timed / 2 - 1] + c.took[timed / 2]) / 2;
-        }
-        per_epoch[s] = per;
-        printf("bench-net: %s, %zu rows x %zu inputs, %zu hidden units, %ld "
-               "epochs in %.2f s: %.1f ms an epoch (median); training MSE "
-               "%.4g\n",
-               network_solver_str(m->solver), n, q, h, m->epochs, total,
-               per * 1e3, m->train_loss);
-        network_free(m);
-    }
     /* the dgemm rates after the training: OpenBLAS's threads spin for a
      * while after a threaded product and would compete with the
      * network's */
@@ -234,8 +245,8 @@ int main(int argc, char **argv)
                NETWORK_LANES);
     for (int s = first; s <= last; s++) {
         double rate = flops_row * (double)n / per_epoch[s] / 1e9;
-        printf("bench-net: %s: %.1f ms an epoch, %.2f GFLOP/s = %.0f%% of "
-               "dgemm (goal 30%%: %s)\n", s ? "lbfgs" : "adam",
+        printf("bench-net: %s: %.1f ms an epoch (fastest run), %.2f GFLOP/s "
+               "= %.0f%% of dgemm (goal 30%%: %s)\n", s ? "lbfgs" : "adam",
                per_epoch[s] * 1e3, rate, 100 * rate / peak,
                rate >= 0.3 * peak ? "met" : "NOT met");
     }
