@@ -69,6 +69,32 @@ static double objective_by_hand(size_t L, const size_t *units, int classify,
     return (double)(sum / n + 0.5L * lambda * pen);
 }
 
+/* Weights uniform on [-1.3, 1.3] for a network of the given shape (their
+ * count returned), n rows of standard normal inputs and targets (0/1 with
+ * probability 0.4 of a 1 when classify), all from r, allocated here. */
+static size_t random_problem(gsl_rng *r, size_t L, const size_t *units,
+                             int classify, size_t n, double **theta,
+                             double **Z, double **t)
+{
+    size_t nw = 0;
+    for (size_t l = 0; l < L; l++)
+        nw += units[l + 1] * units[l] + units[l + 1];
+    *theta = malloc(nw * sizeof **theta);
+    *Z = malloc((n * units[0] > 0 ? n * units[0] : 1) * sizeof **Z);
+    *t = malloc(n * sizeof **t);
+    assert_non_null(*theta);
+    assert_non_null(*Z);
+    assert_non_null(*t);
+    for (size_t i = 0; i < nw; i++)
+        (*theta)[i] = 1.3 * (2 * gsl_rng_uniform(r) - 1);
+    for (size_t i = 0; i < n * units[0]; i++)
+        (*Z)[i] = gsl_ran_gaussian(r, 1.0);
+    for (size_t i = 0; i < n; i++)
+        (*t)[i] = classify ? (double)(gsl_rng_uniform(r) < 0.4)
+                           : gsl_ran_gaussian(r, 1.0);
+    return nw;
+}
+
 /* Every weight of a network of the given shape: the analytic gradient
  * equals the centred difference (f(w+h) - f(w-h)) / 2h (truncation error
  * O(h^2) f''', Nocedal & Wright, 2nd ed., sec. 8.1, eq. 8.7) to a relative
@@ -81,24 +107,10 @@ static void check_gradient_rows(size_t L, const size_t *units, int classify,
                                 size_t block)
 {
     gsl_rng *r = rng_new(seed);
-    size_t nw = 0;
-    for (size_t l = 0; l < L; l++)
-        nw += units[l + 1] * units[l] + units[l + 1];
-    double *theta = malloc(nw * sizeof *theta);
+    double *theta, *Z, *t;
+    size_t nw = random_problem(r, L, units, classify, n, &theta, &Z, &t);
     double *grad = malloc(nw * sizeof *grad);
-    double *Z = malloc((n * units[0] > 0 ? n * units[0] : 1) * sizeof *Z);
-    double *t = malloc(n * sizeof *t);
-    assert_non_null(theta);
     assert_non_null(grad);
-    assert_non_null(Z);
-    assert_non_null(t);
-    for (size_t i = 0; i < nw; i++)
-        theta[i] = 1.3 * (2 * gsl_rng_uniform(r) - 1);
-    for (size_t i = 0; i < n * units[0]; i++)
-        Z[i] = gsl_ran_gaussian(r, 1.0);
-    for (size_t i = 0; i < n; i++)
-        t[i] = classify ? (double)(gsl_rng_uniform(r) < 0.4)
-                        : gsl_ran_gaussian(r, 1.0);
     network_work *w = network_work_alloc(L, units, block);
     assert_non_null(w);
     double ml;
@@ -199,30 +211,17 @@ static void check_gathered(size_t L, const size_t *units, int classify,
 {
     const size_t m = 3000, q = units[0];
     gsl_rng *r = rng_new(seed);
-    size_t nw = 0;
-    for (size_t l = 0; l < L; l++)
-        nw += units[l + 1] * units[l] + units[l + 1];
-    double *theta = malloc(nw * sizeof *theta);
+    double *theta, *Z, *t;
+    size_t nw = random_problem(r, L, units, classify, m, &theta, &Z, &t);
     double *g1 = malloc(nw * sizeof *g1), *g2 = malloc(nw * sizeof *g2);
-    double *Z = malloc((m * q > 0 ? m * q : 1) * sizeof *Z);
     double *Zc = malloc((n * q > 0 ? n * q : 1) * sizeof *Zc);
-    double *t = malloc(m * sizeof *t), *tc = malloc(n * sizeof *tc);
+    double *tc = malloc(n * sizeof *tc);
     uint32_t *idx = malloc(n * sizeof *idx);
-    assert_non_null(theta);
     assert_non_null(g1);
     assert_non_null(g2);
-    assert_non_null(Z);
     assert_non_null(Zc);
-    assert_non_null(t);
     assert_non_null(tc);
     assert_non_null(idx);
-    for (size_t i = 0; i < nw; i++)
-        theta[i] = 1.3 * (2 * gsl_rng_uniform(r) - 1);
-    for (size_t i = 0; i < m * q; i++)
-        Z[i] = gsl_ran_gaussian(r, 1.0);
-    for (size_t i = 0; i < m; i++)
-        t[i] = classify ? (double)(gsl_rng_uniform(r) < 0.4)
-                        : gsl_ran_gaussian(r, 1.0);
     for (size_t i = 0; i < n; i++) {
         idx[i] = (uint32_t)gsl_rng_uniform_int(r, m);
         memcpy(Zc + i * q, Z + (size_t)idx[i] * q, q * sizeof *Z);
