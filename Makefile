@@ -63,8 +63,10 @@ $(BUILD)/%.o: %.c
 # draws an epoch, counted its rows in 0.29 to 0.30 ms instead of 0.37 to
 # 0.49 (one thread, best of 50, tests of the deal's loop alone).
 # -fno-tree-loop-distribute-patterns: GCC otherwise turns short copy loops
-# into calls to memmove, and did so for the last inputs of every row the
-# fused kernel gathers (6.8% of an Adam epoch of tests/bench_net.c).
+# into calls to memmove. It did so for the last inputs of every row the
+# fused kernel gathered (6.8% of an Adam epoch of tests/bench_net.c); that
+# loop now copies whole vectors when a row has 8 inputs or more, and the
+# flag keeps the rest (fewer inputs, other short loops) free of the calls.
 $(BUILD)/engine/network.o: CFLAGS += -fno-math-errno -fvect-cost-model=dynamic -fno-tree-loop-distribute-patterns -DHAVE_INLINE
 
 # A unit test links the module objects; helpers in tests/testutil.h.

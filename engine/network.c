@@ -343,9 +343,10 @@ fail:
  * in row-major order. A K of 0 (a
  * network with no usable input) leaves C as beta C, which the BLAS
  * reference allows but not every BLAS tests; so it is handled here. */
-static void gemm(enum CBLAS_TRANSPOSE ta, enum CBLAS_TRANSPOSE tb, size_t m, size_t n,
-                 size_t k, const double *A, size_t lda, const double *B,
-                 size_t ldb, double beta, double *C, size_t ldc)
+static void gemm(enum CBLAS_TRANSPOSE ta, enum CBLAS_TRANSPOSE tb, size_t m,
+                 size_t n, size_t k, const double *A, size_t lda,
+                 const double *B, size_t ldb, double beta, double *C,
+                 size_t ldc)
 {
     if (m == 0 || n == 0)
         return;
@@ -969,17 +970,17 @@ double network_loss_grad_rows(size_t L, const size_t *units, int classify,
 }
 
 /* Room for count doubles, the standardized rows, in *block (to free):
- * from 4 MB up, placed on a 2 MB boundary and rounded up to whole 2 MB
+ * from 4 MiB up, placed on a 2 MiB boundary and rounded up to whole 2 MiB
  * pages, which the kernel is advised to back with huge pages (madvise(2),
  * MADV_HUGEPAGE; Debian's kernel then uses them for such memory only).
  * Adam reads each batch's rows scattered over all the training rows, and
- * with 4 KB pages nearly every row missed the processor's page cache (its
- * TLB). Advising only the whole pages inside a plain malloc block left
- * the rows of tests/bench_net.c (15.3 MB) 12 MB of huge pages and the
- * rest, at the start, in 4 KB pages: the first lane of each batch read
- * them and was the slower one. The extra 2 MB is address space, touched
- * only where rows lie. Only advice: where it is refused, nothing
- * changes. */
+ * with 4 KiB pages nearly every row missed the processor's page cache
+ * (its TLB). Advising only the whole pages inside a plain malloc block
+ * left the rows of tests/bench_net.c (15.3 MiB) 12 MiB of huge pages and
+ * the rest, mostly at the start, in 4 KiB pages: the first lane of each
+ * batch read them and was the slower one. The extra 2 MiB is address
+ * space, touched only where rows lie. Only advice: where it is refused,
+ * nothing changes. */
 #define HUGE_PAGE ((uintptr_t)2 << 20)
 
 static double *rows_alloc(size_t count, void **block)
@@ -987,6 +988,8 @@ static double *rows_alloc(size_t count, void **block)
     size_t bytes = (count > 0 ? count : 1) * sizeof(double);
     if (bytes < 2 * HUGE_PAGE)
         return *block = malloc(bytes);
+    if (bytes > SIZE_MAX - 2 * HUGE_PAGE)   /* the rounding would wrap */
+        return *block = NULL;
     size_t whole = (bytes + HUGE_PAGE - 1) & ~(HUGE_PAGE - 1);
     char *p = malloc(whole + HUGE_PAGE);
     *block = p;
