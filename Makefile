@@ -74,6 +74,12 @@ $(BUILD)/tests/test_%: tests/test_%.c tests/testutil.h tests/ziptest.h tests/tab
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) $(LDLIBS) -lcmocka
 
+# The network test counts network.c's calls to cblas_dgemv (which path a
+# pass takes: tests/test_network.c).
+$(BUILD)/tests/test_network: tests/test_network.c tests/testutil.h $(LIB_OBJ)
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -o $@ $< $(LIB_OBJ) $(LDFLAGS) -Wl,--wrap=cblas_dgemv $(LDLIBS) -lcmocka
+
 # The allocation-failure test wraps our objects' calls to the allocator
 # (libraries keep theirs: --wrap only rebinds references in our objects).
 OOM_WRAP := $(foreach f,malloc calloc realloc free strdup strndup,-Wl,--wrap=$(f))

@@ -11,6 +11,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <gsl/gsl_cblas.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
@@ -267,6 +268,87 @@ static void test_network_gathered_rows_equal_copied_rows(void **state)
         check_gathered(3, deep, classify, seed++, 23, 7);
         check_gathered(3, deep, classify, seed++, 1100, 300);
     }
+}
+
+/* Which path a pass takes. The Makefile links this test with
+ * -Wl,--wrap=cblas_dgemv, so network.c's calls to cblas_dgemv come here
+ * and are counted: its general layers call it for the output unit of
+ * every block, its fused kernel never does. Weak, so that the binary
+ * still links without the option; the check then skips. */
+void __real_cblas_dgemv(const enum CBLAS_ORDER order,
+                        const enum CBLAS_TRANSPOSE ta, const int m,
+                        const int n, const double alpha, const double *a,
+                        const int lda, const double *x, const int incx,
+                        const double beta, double *y, const int incy)
+    __attribute__((weak));
+void __wrap_cblas_dgemv(const enum CBLAS_ORDER order,
+                        const enum CBLAS_TRANSPOSE ta, const int m,
+                        const int n, const double alpha, const double *a,
+                        const int lda, const double *x, const int incx,
+                        const double beta, double *y, const int incy);
+static long dgemv_calls;
+void __wrap_cblas_dgemv(const enum CBLAS_ORDER order,
+                        const enum CBLAS_TRANSPOSE ta, const int m,
+                        const int n, const double alpha, const double *a,
+                        const int lda, const double *x, const int incx,
+                        const double beta, double *y, const int incy)
+{
+    dgemv_calls++;
+    __real_cblas_dgemv(order, ta, m, n, alpha, a, lda, x, incx, beta, y,
+                       incy);
+}
+
+/* cblas_dgemv calls of one pass over n rows with the gradient, plain and
+ * gathered (the rows in order). */
+static long dgemv_calls_of(size_t L, const size_t *units, size_t n)
+{
+    gsl_rng *r = rng_new(7);
+    double *theta, *Z, *t;
+    size_t nw = random_problem(r, L, units, 0, n, &theta, &Z, &t);
+    double *g = malloc(nw * sizeof *g);
+    uint32_t *idx = malloc(n * sizeof *idx);
+    assert_non_null(g);
+    assert_non_null(idx);
+    for (size_t i = 0; i < n; i++)
+        idx[i] = (uint32_t)i;
+    network_work *w = network_work_alloc(L, units, 300);
+    assert_non_null(w);
+    dgemv_calls = 0;
+    network_loss_grad(L, units, 0, theta, Z, t, n, 0, g, NULL, w);
+    network_loss_grad_rows(L, units, 0, theta, Z, t, idx, n, 0, g, NULL, w);
+    long calls = dgemv_calls;
+    network_work_free(w);
+    free(theta);
+    free(Z);
+    free(t);
+    free(g);
+    free(idx);
+    gsl_rng_free(r);
+    return calls;
+}
+
+/* The fused kernel serves one hidden layer of 8, 16, 24 or 32 units (the
+ * widths methods.md names), whatever the inputs; any other shape runs
+ * through the general layers. */
+static void test_network_fused_kernel_serves_its_shapes(void **state)
+{
+    (void)state;
+    if (__real_cblas_dgemv == NULL)
+        skip();
+    const size_t fused[][3] = { { 3, 8, 1 }, { 20, 16, 1 }, { 5, 24, 1 },
+                                { 9, 32, 1 }, { 0, 8, 1 } };
+    const size_t general[][3] = { { 3, 4, 1 }, { 20, 12, 1 }, { 3, 40, 1 },
+                                  { 3, 7, 1 } };
+    const size_t deep[4] = { 3, 8, 8, 1 };
+    for (size_t s = 0; s < sizeof fused / sizeof fused[0]; s++)
+        if (dgemv_calls_of(2, fused[s], 700) != 0)
+            fail_msg("%zu inputs, %zu units: not the fused kernel",
+                     fused[s][0], fused[s][1]);
+    for (size_t s = 0; s < sizeof general / sizeof general[0]; s++)
+        if (dgemv_calls_of(2, general[s], 700) == 0)
+            fail_msg("%zu inputs, %zu units: not the general layers",
+                     general[s][0], general[s][1]);
+    assert_true(dgemv_calls_of(3, deep, 700) > 0);
 }
 
 /* ------------------------------------------------------------ learning */
@@ -1037,6 +1119,7 @@ int main(void)
         cmocka_unit_test(test_network_gradient_over_lanes),
         cmocka_unit_test(test_network_gradient_of_the_fused_layer),
         cmocka_unit_test(test_network_gathered_rows_equal_copied_rows),
+        cmocka_unit_test(test_network_fused_kernel_serves_its_shapes),
         cmocka_unit_test(test_network_threads_do_not_change_the_weights),
         cmocka_unit_test(test_network_threads_do_not_change_wide_layers),
         cmocka_unit_test(test_network_adam_uses_every_row_once_an_epoch),
