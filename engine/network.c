@@ -979,8 +979,8 @@ double network_loss_grad_rows(size_t L, const size_t *units, int classify,
  * left the rows of tests/bench_net.c (15.3 MiB) 12 MiB of huge pages and
  * the rest, mostly at the start, in 4 KiB pages: the first lane of each
  * batch read them and was the slower one. The extra 2 MiB is address
- * space, touched only where rows lie. Only advice: where it is refused,
- * nothing changes. */
+ * space; at most the rest of the last huge page is memory beyond the
+ * rows. Only advice: where it is refused, nothing changes. */
 #define HUGE_PAGE ((uintptr_t)2 << 20)
 
 static double *rows_alloc(size_t count, void **block)
