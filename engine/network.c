@@ -412,6 +412,17 @@ static void outer_slope(double *restrict dp, double *restrict gb,
     }
 }
 
+/* Gathering rows idx[0 .. rows-1] of Z (q values a row) and t into gz
+ * and gt, whoever gathers: the general layers a block at a time
+ * (gather), the fused kernel between its groups' arithmetic, so that the
+ * memory works while the vector units do. */
+typedef struct row_fetch {
+    const uint32_t *idx;
+    size_t rows, q;
+    const double *Z, *t;
+    double *gz, *gt;
+} row_fetch;
+
 /* ------------------------------------------------ one hidden layer, fused
  *
  * The usual network, one hidden layer of 8, 16, 24 or 32 units and the
@@ -436,8 +447,8 @@ static void outer_slope(double *restrict dp, double *restrict gb,
  * with or without contraction (2^21 points of [-20, 20] and 2^21 from
  * 2^-1074 to 2^6, measured for the AVX-512 clone both ways). */
 typedef struct fused {
-    const double *X, *t;    /* rows x q inputs, their targets (with idx,
-                               the gathered copies gx, gy) */
+    const double *X, *t;    /* rows x q inputs, their targets (with
+                               g.idx, the gathered copies g.gz, g.gt) */
     size_t rows, q;
     const double *wt;       /* the input weights transposed, q x h */
     const double *b, *v;    /* h hidden biases, h output weights */
@@ -447,19 +458,16 @@ typedef struct fused {
     double *gb, *gv, *gc;   /* gradient sums: hidden biases, output
                                weights, output bias */
     long double loss;       /* sum of the rows' losses */
-    /* with idx, the rows are idx[0 .. rows-1] of Zs and ts, gathered into
-     * gx and gy as the kernel reaches them */
-    const uint32_t *idx;
-    const double *Zs, *ts;
-    double *gx, *gy;
+    row_fetch g;            /* with g.idx: the rows to gather as the
+                               kernel reaches them */
 } fused;
 
-/* Rows ahead of the one being gathered that fused_fetch asks the memory
+/* Rows ahead of the one being gathered that fetch_row asks the memory
  * for: enough to cover a memory access at some tens of nanoseconds a row
  * (common practice: a prefetch distance of about the memory's latency
  * over the work per item). In tests/bench_net.c on one thread, 6, 16 and
  * 32 ran alike, and no prefetch at all 1.5 times as slow. */
-#define FUSED_AHEAD 16
+#define ROWS_AHEAD 16
 
 /* Asks the memory for a row of q values (every cache line of it) and its
  * target, ahead of their use. */
@@ -498,22 +506,34 @@ copy_row(double *restrict dst, const double *restrict src, size_t q)
         dst[c] = src[c];
 }
 
-/* Copies rows r0 .. r0 + R - 1 of a gathering kernel into f->X and f->t,
- * and asks for the rows FUSED_AHEAD later: the gather runs between the
- * groups' arithmetic, so the memory works while the vector units do. */
+/* Asks for the first ROWS_AHEAD rows, before fetch_row's lead. */
+static inline __attribute__((always_inline)) void
+ask_first_rows(const row_fetch *g)
+{
+    for (size_t r = 0; r < ROWS_AHEAD && r < g->rows; r++)
+        ask_row(g->Z + (size_t)g->idx[r] * g->q, g->t + g->idx[r], g->q);
+}
+
+/* Copies row r into place and asks for the row ROWS_AHEAD later. */
+static inline __attribute__((always_inline)) void
+fetch_row(const row_fetch *g, size_t r)
+{
+    const size_t q = g->q;
+    if (r + ROWS_AHEAD < g->rows) {
+        const uint32_t ahead = g->idx[r + ROWS_AHEAD];
+        ask_row(g->Z + (size_t)ahead * q, g->t + ahead, q);
+    }
+    copy_row(g->gz + r * q, g->Z + (size_t)g->idx[r] * q, q);
+    g->gt[r] = g->t[g->idx[r]];
+}
+
+/* Rows r0 .. r0 + R - 1 of a gathering kernel (f->g.idx not NULL). */
 static inline __attribute__((always_inline)) void
 fused_fetch(const fused *f, size_t r0, const size_t R)
 {
-    const size_t q = f->q;
 #pragma GCC unroll 4
-    for (size_t r = r0; r < r0 + R; r++) {
-        if (r + FUSED_AHEAD < f->rows) {
-            const uint32_t ahead = f->idx[r + FUSED_AHEAD];
-            ask_row(f->Zs + (size_t)ahead * q, f->ts + ahead, q);
-        }
-        copy_row(f->gx + r * q, f->Zs + (size_t)f->idx[r] * q, q);
-        f->gy[r] = f->ts[f->idx[r]];
-    }
+    for (size_t r = r0; r < r0 + R; r++)
+        fetch_row(&f->g, r);
 }
 
 /* The running sums of fused_rows, held in registers over the rows. */
@@ -612,18 +632,17 @@ fused_rows_h(fused *f, const size_t H)
             memcpy(&S.gv[i], f->gv + i * TANH_LANES, sizeof S.gv[i]);
         }
     }
-    if (f->idx != NULL)   /* the first rows, before fused_fetch's lead */
-        for (size_t r = 0; r < FUSED_AHEAD && r < f->rows; r++)
-            ask_row(f->Zs + (size_t)f->idx[r] * f->q, f->ts + f->idx[r],
-                    f->q);
+    const int gathering = f->g.idx != NULL;
+    if (gathering)
+        ask_first_rows(&f->g);
     size_t r0 = 0;
     for (; r0 + 4 <= f->rows; r0 += 4) {
-        if (f->idx != NULL)
+        if (gathering)
             fused_fetch(f, r0, 4);
         fused_group(f, &S, r0, 4, H);
     }
     for (; r0 < f->rows; r0++) {
-        if (f->idx != NULL)
+        if (gathering)
             fused_fetch(f, r0, 1);
         fused_group(f, &S, r0, 1, H);
     }
@@ -749,24 +768,15 @@ typedef struct pass {
     network_work *w;
 } pass;
 
-/* Rows ahead that a gathering lane asks the memory for while it copies
- * one (common practice: enough to cover a memory access). */
-#define GATHER_AHEAD 32
-
 /* ln->gz, ln->gt = rows idx[0..rows-1] of Z and t (q values a row), for
- * the general layers. The rows are scattered over all the data, so each
- * is asked of the memory GATHER_AHEAD rows early. */
+ * the general layers. */
 static void gather(lane *ln, const double *Z, const double *t,
                    const uint32_t *idx, size_t rows, size_t q)
 {
-    for (size_t i = 0; i < rows; i++) {
-        if (i + GATHER_AHEAD < rows) {
-            const uint32_t ahead = idx[i + GATHER_AHEAD];
-            ask_row(Z + (size_t)ahead * q, t + ahead, q);
-        }
-        copy_row(ln->gz + i * q, Z + (size_t)idx[i] * q, q);
-        ln->gt[i] = t[idx[i]];
-    }
+    const row_fetch g = { idx, rows, q, Z, t, ln->gz, ln->gt };
+    ask_first_rows(&g);
+    for (size_t i = 0; i < rows; i++)
+        fetch_row(&g, i);
 }
 
 /* Lanes of a pass of n rows: a function of n alone (network.h). */
@@ -795,18 +805,18 @@ static void lane_pass(const pass *p, size_t k)
         if (fuse) {
             const size_t h = units[1];
             double *gW = ln->grad, *gb = gW + h * q, *gv = gb + h;
-            fused f = { Zb, tb, rows, q, ln->wt, p->theta + h * q,
-                        p->theta + h * q + h, p->theta[h * q + 2 * h],
-                        p->classify, p->want_grad, ln->delta[0], gb, gv,
-                        gv + h, 0, NULL, NULL, NULL, NULL, NULL };
+            fused f = { .X = Zb, .t = tb, .rows = rows, .q = q,
+                        .wt = ln->wt, .b = p->theta + h * q,
+                        .v = p->theta + h * q + h,
+                        .c = p->theta[h * q + 2 * h],
+                        .classify = p->classify, .want_grad = p->want_grad,
+                        .D = ln->delta[0], .gb = gb, .gv = gv, .gc = gv + h };
             if (p->idx != NULL) {
                 /* the kernel gathers the rows as it goes */
-                f.X = f.gx = ln->gz;
-                f.t = f.gy = ln->gt;
-                Zb = ln->gz;
-                f.idx = p->idx + a + r0;
-                f.Zs = p->Z;
-                f.ts = p->t;
+                f.g = (row_fetch){ p->idx + a + r0, rows, q, p->Z, p->t,
+                                   ln->gz, ln->gt };
+                f.X = Zb = ln->gz;
+                f.t = ln->gt;
             }
             fused_rows(&f, h / TANH_LANES);
             sum += f.loss;
