@@ -138,6 +138,50 @@ static int by_value(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
+/* One training run of the network (lbfgs: that solver, else Adam) on the
+ * bench's rows; prints it and returns its median epoch in seconds, or -1
+ * when the fit failed. */
+static double train(const long double *X, const double *y, size_t n,
+                    size_t p, size_t h, int lbfgs, long epochs,
+                    size_t threads)
+{
+    static clock_ctx c;   /* EPOCHS_MAX times: too large for the stack */
+    memset(&c, 0, sizeof c);
+    network_options o;
+    network_options_init(&o);
+    o.hidden[0] = h;
+    o.solver = lbfgs ? NETWORK_LBFGS : NETWORK_ADAM;
+    o.holdout = 0;
+    o.epochs = epochs;
+    o.threads = threads;
+    o.progress = tick;
+    o.progress_ctx = &c;
+    network_model *m = NULL;
+    rf_error err;
+    memset(&err, 0, sizeof err);
+    double t0 = now();
+    if (network_fit(X, y, n, p, &o, &m, &err) != RF_OK) {
+        fprintf(stderr, "bench-net: %s\n", err.message);
+        return -1;
+    }
+    double total = now() - t0;
+    /* Adam: one pass an epoch; L-BFGS: one pass per line-search trial,
+     * nearly always one, so its epochs are a lower bound */
+    long timed = c.epochs - 1 < EPOCHS_MAX ? c.epochs - 1 : EPOCHS_MAX;
+    double per = total;
+    if (timed > 0) {
+        qsort(c.took, (size_t)timed, sizeof *c.took, by_value);
+        per = timed % 2 ? c.took[timed / 2]
+                        : (c.took[timed / 2 - 1] + c.took[timed / 2]) / 2;
+    }
+    printf("bench-net: %s, %zu rows x %zu inputs, %zu hidden units, %ld "
+           "epochs in %.2f s: %.1f ms an epoch (median); training MSE "
+           "%.4g\n", network_solver_str(m->solver), n, p - 1, h, m->epochs,
+           total, per * 1e3, m->train_loss);
+    network_free(m);
+    return per;
+}
+
 int main(int argc, char **argv)
 {
     size_t n = 100000, q = 20, h = 16;
@@ -184,47 +228,16 @@ int main(int argc, char **argv)
         runs = 1;
     double flops_row = 4.0 * (double)(q * h) + 6.0 * (double)h;
     double per_epoch[2] = { INFINITY, INFINITY };   /* the fastest run's */
-    for (long run = 0; run < runs; run++)
+    for (long run = 0; run < runs; run++) {
+        printf("bench-net: training run %ld of %ld\n", run + 1, runs);
         for (int s = first; s <= last; s++) {
-            network_options o;
-            network_options_init(&o);
-            o.hidden[0] = h;
-            o.solver = s ? NETWORK_LBFGS : NETWORK_ADAM;
-            o.holdout = 0;
-            o.epochs = epochs;
-            o.threads = threads_opt;
-            static clock_ctx c;
-            memset(&c, 0, sizeof c);
-            o.progress = tick;
-            o.progress_ctx = &c;
-            network_model *m = NULL;
-            rf_error err;
-            memset(&err, 0, sizeof err);
-            double t0 = now();
-            if (network_fit(X, y, n, p, &o, &m, &err) != RF_OK) {
-                fprintf(stderr, "bench-net: %s\n", err.message);
+            double per = train(X, y, n, p, h, s, epochs, threads_opt);
+            if (per < 0)
                 return 1;
-            }
-            double total = now() - t0;
-            /* Adam: one pass an epoch; L-BFGS: one pass per line-search
-             * trial, nearly always one, so its epochs are a lower bound */
-            long timed = c.epochs - 1 < EPOCHS_MAX ? c.epochs - 1 : EPOCHS_MAX;
-            double per = total;
-            if (timed > 0) {
-                qsort(c.took, (size_t)timed, sizeof *c.took, by_value);
-                per = timed % 2 ? c.took[timed / 2]
-                                : (c.took[timed / 2 - 1] + c.took[timed / 2])
-                                      / 2;
-            }
             if (per < per_epoch[s])
                 per_epoch[s] = per;
-            printf("bench-net: %s run %ld of %ld, %zu rows x %zu inputs, %zu "
-                   "hidden units, %ld epochs in %.2f s: %.1f ms an epoch "
-                   "(median); training MSE %.4g\n",
-                   network_solver_str(m->solver), run + 1, runs, n, q, h,
-                   m->epochs, total, per * 1e3, m->train_loss);
-            network_free(m);
         }
+    }
     /* the dgemm rates after the training: OpenBLAS's threads spin for a
      * while after a threaded product and would compete with the
      * network's */
